@@ -1,0 +1,1 @@
+//! The campaign file: serde schema, validation with file:line:column, λ schedules.

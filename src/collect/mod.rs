@@ -1,0 +1,1 @@
+//! Reading window output (window tables and configurable columns) and the parse cache.

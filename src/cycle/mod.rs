@@ -1,0 +1,1 @@
+//! From legs to edges: signed legs, corrections, replicas combined. Pure numerics.

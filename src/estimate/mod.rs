@@ -1,0 +1,1 @@
+//! Free-energy estimators (TI, EXP, BAR, MBAR), overlap, equilibration and decorrelation. Pure numerics.

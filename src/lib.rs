@@ -1,0 +1,25 @@
+//! legwork runs alchemical free-energy campaigns on batch clusters: one declarative
+//! campaign file in; a tree of task scripts, scheduler jobs, tracked state, leg
+//! free energies, edge ΔΔG and a reconciled network out.
+//!
+//! The numeric core ([`estimate`], [`cycle`], [`network`], [`units`]) does no I/O and
+//! can be used as a library on its own.
+
+#![warn(missing_docs)]
+
+pub mod campaign;
+pub mod cli;
+pub mod collect;
+pub mod commands;
+pub mod cycle;
+pub mod demo;
+pub mod estimate;
+pub mod exit;
+pub mod logging;
+pub mod network;
+pub mod plan;
+pub mod render;
+pub mod report;
+pub mod scheduler;
+pub mod state;
+pub mod units;

@@ -1,0 +1,123 @@
+//! The plan: every task of a campaign with its id, directory, λ state, resources,
+//! seed and dependencies, and the batches they are submitted in.
+//!
+//! Expansion is pure: a validated campaign in, a [`Plan`] out, no I/O. The same plan
+//! drives `expand`, `submit`, `status` and `collect`.
+
+use serde::{Deserialize, Serialize};
+use std::path::PathBuf;
+
+/// Index of a task in [`Plan::tasks`].
+pub type TaskIndex = usize;
+/// Index of a batch in [`Plan::batches`].
+pub type BatchIndex = usize;
+
+/// What a task's leg belongs to: an edge of a relative campaign, or one ligand of
+/// an absolute or solvation campaign.
+#[derive(Debug, Clone, PartialEq, Eq, Hash, PartialOrd, Ord, Serialize, Deserialize)]
+pub enum Subject {
+    /// A relative transformation from ligand `a` to ligand `b`.
+    Edge {
+        /// first ligand id (λ = 0)
+        a: String,
+        /// second ligand id (λ = 1)
+        b: String,
+    },
+    /// A single ligand (absolute binding or solvation).
+    Ligand {
+        /// ligand id
+        id: String,
+    },
+}
+
+impl Subject {
+    /// The id used in task ids and paths: `a~b` for an edge, the ligand id otherwise.
+    pub fn id(&self) -> String {
+        match self {
+            Subject::Edge { a, b } => format!("{a}~{b}"),
+            Subject::Ligand { id } => id.clone(),
+        }
+    }
+}
+
+/// What one task asks of the scheduler.
+#[derive(Debug, Clone, PartialEq, Eq, Hash, Serialize, Deserialize)]
+pub struct Resources {
+    /// CPU cores.
+    pub cpus: u32,
+    /// GPUs.
+    pub gpus: u32,
+    /// memory in MiB (0: the scheduler's default)
+    pub memory_mb: u64,
+    /// wall-clock limit in seconds
+    pub walltime_s: u64,
+}
+
+/// One scheduler job or array element: one stage of one window (or of one leg)
+/// of one replica of one leg of one subject.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Task {
+    /// Stable id, e.g. `lig-a~lig-b/complex/r1/w07/production` or
+    /// `lig-a~lig-b/complex/r1/prepare` for a per-leg stage.
+    pub id: String,
+    /// The edge or ligand.
+    pub subject: Subject,
+    /// Leg name.
+    pub leg: String,
+    /// Replica number, from 1.
+    pub replica: u32,
+    /// Window (λ state) index from 0; `None` for a per-leg stage.
+    pub window: Option<usize>,
+    /// Stage name.
+    pub stage: String,
+    /// The task's directory, relative to the campaign root.
+    pub dir: PathBuf,
+    /// Tasks that must be done before this one starts.
+    pub after: Vec<TaskIndex>,
+    /// What it asks of the scheduler.
+    pub resources: Resources,
+    /// Seed for the engine, derived from the campaign seed and the task id.
+    pub seed: u64,
+    /// Frames the stage must produce for the task to count as done, if it says.
+    pub frames: Option<u64>,
+    /// The batch this task is submitted in.
+    pub batch: BatchIndex,
+}
+
+/// How a batch waits for another batch.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+pub enum BatchDep {
+    /// Every task of this batch waits for every task of that batch
+    /// (a per-leg stage before the windows that need it).
+    All(BatchIndex),
+    /// Element i of this batch waits for element i of that batch (two per-window
+    /// stages of the same windows).
+    Elementwise(BatchIndex),
+}
+
+/// Tasks submitted together as one array: one stage of one leg of one replica of
+/// one subject. The array index of a task is its position in `tasks`.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Batch {
+    /// Stable id, e.g. `lig-a~lig-b/complex/r1/production`.
+    pub id: String,
+    /// Stage name.
+    pub stage: String,
+    /// Member tasks, in window order.
+    pub tasks: Vec<TaskIndex>,
+    /// Batches this one waits for.
+    pub after: Vec<BatchDep>,
+    /// Shared resources of every member.
+    pub resources: Resources,
+}
+
+/// Every task and batch of a campaign.
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize)]
+pub struct Plan {
+    /// Campaign name.
+    pub campaign: String,
+    /// Every task, grouped by batch, batches in dependency order.
+    pub tasks: Vec<Task>,
+    /// Every batch, in dependency order (a batch comes after those it waits for).
+    pub batches: Vec<Batch>,
+}

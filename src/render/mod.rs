@@ -1,0 +1,1 @@
+//! Rendering the plan into the tree: tera context, confined, atomic, idempotent writes.

@@ -1,0 +1,1 @@
+//! Results tables (CSV, JSON), SVG plots and the HTML report.

@@ -1,0 +1,1 @@
+//! Schedulers behind one trait: local executor, Slurm, PBS, SGE, LSF.

@@ -1,0 +1,1 @@
+//! Campaign state: the journal, its snapshot and lock, task states, the tracker.

@@ -1,1 +1,5 @@
 //! Reading window output (window tables and configurable columns) and the parse cache.
+
+pub mod config;
+
+pub use config::ReaderConfig;

@@ -1,0 +1,72 @@
+//! The `scheduler:` section of a campaign file.
+
+use serde::{Deserialize, Serialize};
+
+/// Which scheduler runs the tasks.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Default, Serialize, Deserialize)]
+#[serde(rename_all = "lowercase")]
+pub enum SchedulerKind {
+    /// The built-in local executor.
+    #[default]
+    Local,
+    /// Slurm.
+    Slurm,
+    /// PBS Pro or Torque.
+    Pbs,
+    /// Sun/Son of/Univa Grid Engine.
+    Sge,
+    /// IBM Spectrum LSF.
+    Lsf,
+}
+
+/// The `scheduler:` section.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct SchedulerConfig {
+    /// Which scheduler.
+    #[serde(default)]
+    pub kind: SchedulerKind,
+    /// Most tasks queued or running at once (0: no limit).
+    #[serde(default = "default_max_queued")]
+    pub max_queued: u64,
+    /// Attempts per task before resume gives up on it.
+    #[serde(default = "default_max_attempts")]
+    pub max_attempts: u32,
+    /// Seconds between polls of the queue.
+    #[serde(default = "default_poll")]
+    pub poll_seconds: f64,
+    /// The local executor's concurrency (default: the machine's cores).
+    #[serde(default)]
+    pub max_parallel: Option<usize>,
+    /// Batch-script template, relative to the campaign's template folder; default
+    /// legwork's built-in one for the kind.
+    #[serde(default)]
+    pub batch_template: Option<String>,
+    /// Free-form options passed to batch templates as `scheduler.options`.
+    #[serde(default)]
+    pub options: serde_json::Map<String, serde_json::Value>,
+}
+
+impl Default for SchedulerConfig {
+    fn default() -> Self {
+        SchedulerConfig {
+            kind: SchedulerKind::Local,
+            max_queued: default_max_queued(),
+            max_attempts: default_max_attempts(),
+            poll_seconds: default_poll(),
+            max_parallel: None,
+            batch_template: None,
+            options: Default::default(),
+        }
+    }
+}
+
+fn default_max_queued() -> u64 {
+    1000
+}
+fn default_max_attempts() -> u32 {
+    3
+}
+fn default_poll() -> f64 {
+    30.0
+}

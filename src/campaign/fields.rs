@@ -150,7 +150,7 @@ impl Ctx {
                 self.error(
                     node.pos,
                     format!("{what} must be a whole number, not {}", node.kind()),
-                    None,
+                    Some("write a whole number such as 3, without quotes".to_string()),
                 );
                 None
             }

@@ -1278,7 +1278,11 @@ fn parse_resources(ctx: &mut Ctx, node: Option<&Node>, what: &str) -> Resources 
         if let Some(t) = text {
             match parse_walltime(&t) {
                 Ok(s) => r.walltime_s = s,
-                Err(e) => ctx.error(n.pos, e, None),
+                Err(e) => ctx.error(
+                    n.pos,
+                    e,
+                    Some("units: d, h, m, s (largest first), or HH:MM:SS / D-HH:MM:SS".to_string()),
+                ),
             }
         }
     }

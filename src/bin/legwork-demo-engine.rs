@@ -297,8 +297,13 @@ fn do_run(a: RunArgs) -> Result<ExitCode, DemoError> {
                     std::thread::sleep(std::time::Duration::from_secs(3600));
                 },
                 FaultAction::Signal(sig) => {
-                    let sig = nix::sys::signal::Signal::try_from(sig).expect("parsed earlier");
-                    let _ = nix::sys::signal::raise(sig);
+                    use nix::sys::signal::{raise, signal, SigHandler, Signal};
+                    let sig = Signal::try_from(sig).expect("parsed earlier");
+                    // The Rust runtime handles SIGSEGV and SIGBUS itself; restore the
+                    // default action so the process dies by the signal as asked.
+                    // SAFETY: single-threaded here, and SigDfl installs no handler code.
+                    let _ = unsafe { signal(sig, SigHandler::SigDfl) };
+                    let _ = raise(sig);
                     // Signals whose default action is not to terminate land here.
                     Ok(ExitCode::from(128u8.wrapping_add(sig as u8)))
                 }

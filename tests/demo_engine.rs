@@ -834,3 +834,172 @@ fn the_scenario_spans_about_four_kcal_per_mol() {
             && measured.lines().any(|l| l.ends_with(",kcal/mol"))
     );
 }
+
+/// `shell_quote` as the render module documents it: POSIX single quotes. Here only so
+/// that the demo templates can be rendered without the campaign machinery.
+fn shell_quote(
+    v: &tera::Value,
+    _: &std::collections::HashMap<String, tera::Value>,
+) -> tera::Result<tera::Value> {
+    let s = match v {
+        tera::Value::String(s) => s.clone(),
+        other => other.to_string(),
+    };
+    Ok(tera::Value::String(format!(
+        "'{}'",
+        s.replace('\'', r"'\''")
+    )))
+}
+
+fn render(template: &str, ctx: &serde_json::Value) -> String {
+    let mut t = tera::Tera::default();
+    t.register_filter("shell_quote", shell_quote);
+    let src =
+        std::fs::read_to_string(Path::new(ROOT).join("templates/demo").join(template)).unwrap();
+    t.add_raw_template(template, &src).unwrap();
+    t.render(template, &tera::Context::from_value(ctx.clone()).unwrap())
+        .unwrap()
+}
+
+/// A CONTRACT §3 context for edge ork-01~ork-05, leg complex, replica 1.
+fn stage_context(
+    root: &Path,
+    stage: &str,
+    window: Option<usize>,
+    vars: serde_json::Value,
+) -> serde_json::Value {
+    use serde_json::json;
+    let ligands = ligand_table();
+    // Vars as read from a CSV: text.
+    let lig = |id: &str| {
+        let l = ligands.iter().find(|l| l.id == id).unwrap();
+        let mut v = serde_json::Map::new();
+        for env in ["complex", "solvent"] {
+            let w = l.well(env).unwrap();
+            v.insert(format!("{env}_offset"), json!(w.offset.to_string()));
+            v.insert(format!("{env}_k"), json!(w.k.to_string()));
+            v.insert(format!("{env}_shift"), json!(w.shift.to_string()));
+        }
+        json!({"id": id, "vars": v})
+    };
+    let lambdas: Vec<f64> = (0..12)
+        .map(|i| 0.5 * (1.0 - (std::f64::consts::PI * i as f64 / 11.0).cos()))
+        .collect();
+    let leg_dir = root.join("ork-01~ork-05/complex/r1");
+    let dir = match window {
+        Some(w) => leg_dir.join(format!("w{w:02}")).join(stage),
+        None => leg_dir.join(stage),
+    };
+    std::fs::create_dir_all(&dir).unwrap();
+    let mut all_vars =
+        json!({"dimensions": 3, "phi": 0.9, "checkpoint_every": 500, "environment": "complex"});
+    for (k, v) in vars.as_object().unwrap() {
+        all_vars[k] = v.clone();
+    }
+    json!({
+        "campaign": {"name": "orrin-demo", "seed": 20261201, "temperature_K": 298.15, "unit": "kcal/mol",
+                     "file": root.join("demo.yaml"), "dir": root, "root": root},
+        "task": {"id": "t", "dir": dir, "stage": stage, "attempt": 1, "restart": false, "seed": 987654321u64,
+                 "frames": 2000, "output": "window.tsv"},
+        "subject": {"id": "ork-01~ork-05", "kind": "edge"},
+        "edge": {"id": "ork-01~ork-05", "a": "ork-01", "b": "ork-05", "vars": {}},
+        "ligand_a": lig("ork-01"), "ligand_b": lig("ork-05"),
+        "leg": {"name": "complex", "sign": 1, "replicas": 2, "windows": 12},
+        "replica": 1,
+        "window": window.map(|w| json!({"index": w, "lambda": lambdas[w], "lambdas": {"lambda": lambdas[w]}})),
+        "states": lambdas.iter().enumerate().map(|(i, l)| json!({"index": i, "lambda": l, "lambdas": {"lambda": l}})).collect::<Vec<_>>(),
+        "lambdas": lambdas, "components": ["lambda"],
+        "stage": {"name": stage, "per": if window.is_some() { "window" } else { "leg" }, "frames": 2000, "output": "window.tsv"},
+        "after": {"prepare": {"dir": leg_dir.join("prepare"), "id": "ork-01~ork-05/complex/r1/prepare"}},
+        "vars": all_vars,
+        "legwork": {"version": "0", "exe": ENGINE, "bin_dir": Path::new(ENGINE).parent().unwrap()},
+    })
+}
+
+fn bash(script: &str, dir: &Path) -> std::process::Output {
+    let path = dir.join("task.sh");
+    std::fs::write(&path, script).unwrap();
+    Command::new("bash").arg(&path).output().unwrap()
+}
+
+#[test]
+fn the_demo_stage_templates_run_the_engine() {
+    // prepare, then one production window, rendered from the shipped templates with a
+    // CONTRACT §3 context (in a directory with a space, to exercise the quoting).
+    let tmp = tempfile::tempdir().unwrap();
+    let root = tmp.path().join("orrin demo");
+    let prep = stage_context(&root, "prepare", None, serde_json::json!({}));
+    let out = bash(&render("prepare.sh.tera", &prep), tmp.path());
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let prod = stage_context(&root, "production", Some(7), serde_json::json!({}));
+    let script = render("production.sh.tera", &prod);
+    assert!(script.contains("--fault-fail-probability '0'"));
+    assert!(!script.contains("--fault-truncate") && !script.contains("--fault-signal"));
+    let out = bash(&script, tmp.path());
+    assert!(
+        out.status.success(),
+        "{script}\n{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let table = root.join("ork-01~ork-05/complex/r1/w07/production/window.tsv");
+    let text = std::fs::read_to_string(&table).unwrap();
+    assert!(text.contains("# state: 7\n"));
+    let header: Vec<f64> = text
+        .lines()
+        .find_map(|l| l.strip_prefix("# lambdas: "))
+        .unwrap()
+        .split(' ')
+        .map(|v| v.parse().unwrap())
+        .collect();
+    let sent: Vec<f64> = prod["lambdas"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|v| v.as_f64().unwrap())
+        .collect();
+    assert_eq!(header, sent, "the table's λ list is the leg's, bit for bit");
+    assert_eq!(rows(&table).len(), 2000);
+    assert_eq!(rows(&table)[0].len(), 14);
+    // The first frame is the prepared start: ligand ork-01's complex well (k = 4, at 0)
+    // displaced 3σ per axis, so u_A = c_A + ½·4·3·9σ² = c_A + 13.5 kT.
+    let kt = unequal().kt;
+    assert!((rows(&table)[0][2] - (-2.0 + 13.5 * kt)).abs() < 1e-5);
+}
+
+#[test]
+fn the_production_template_wires_the_fault_vars() {
+    let tmp = tempfile::tempdir().unwrap();
+    let root = tmp.path().join("r");
+    let vars = serde_json::json!({"fault_fail_after": 300, "fault_truncate": true, "fault_signal": "TERM",
+                                  "fault_hang_attempt": 4, "fault_fail_probability": 0.25, "fault_attempts": 2});
+    let script = render(
+        "production.sh.tera",
+        &stage_context(&root, "production", Some(0), vars),
+    );
+    for flag in [
+        "--fault-fail-after '300'",
+        "--fault-truncate",
+        "--fault-signal 'TERM'",
+        "--fault-hang-attempt '4'",
+        "--fault-fail-probability '0.25'",
+        "--fault-attempts '2'",
+    ] {
+        assert!(script.contains(flag), "{flag} missing in\n{script}");
+    }
+    let prep = stage_context(&root, "prepare", None, serde_json::json!({}));
+    assert!(bash(&render("prepare.sh.tera", &prep), tmp.path())
+        .status
+        .success());
+    // fail_after fires first (300 frames), exit 1.
+    let out = bash(&script, tmp.path());
+    assert_eq!(
+        out.status.code(),
+        Some(1),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+}

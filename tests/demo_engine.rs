@@ -1003,3 +1003,54 @@ fn the_production_template_wires_the_fault_vars() {
         String::from_utf8_lossy(&out.stderr)
     );
 }
+
+#[test]
+fn the_demo_campaign_checks_expands_and_one_window_runs() {
+    let legwork = env!("CARGO_BIN_EXE_legwork");
+    let campaign = Path::new(ROOT).join("campaigns/demo.yaml");
+    let check = Command::new(legwork)
+        .arg("check")
+        .arg(&campaign)
+        .output()
+        .unwrap();
+    assert!(
+        check.status.success(),
+        "{}",
+        String::from_utf8_lossy(&check.stderr)
+    );
+    let tmp = tempfile::tempdir().unwrap();
+    let root = tmp.path().join("tree");
+    let expand = Command::new(legwork)
+        .arg("expand")
+        .arg(&campaign)
+        .arg("--root")
+        .arg(&root)
+        .arg("-q")
+        .output()
+        .unwrap();
+    assert!(
+        expand.status.success(),
+        "{}",
+        String::from_utf8_lossy(&expand.stderr)
+    );
+    let leg = root.join("ork-07~ork-08/solvent/r1");
+    for script in [
+        leg.join("prepare/task.sh"),
+        leg.join("w11/production/task.sh"),
+    ] {
+        let out = Command::new("bash").arg(&script).output().unwrap();
+        assert!(
+            out.status.success(),
+            "{}: {}",
+            script.display(),
+            String::from_utf8_lossy(&out.stderr)
+        );
+    }
+    let table = leg.join("w11/production/window.tsv");
+    let text = std::fs::read_to_string(&table).unwrap();
+    assert!(text.contains("# state: 11\n") && text.contains("# energy_unit: kcal/mol\n"));
+    assert_eq!(rows(&table).len(), 2000);
+    assert_eq!(rows(&table)[0].len(), 14);
+    // State 11 is λ = 1: u11 is ligand ork-08's solvent well, c = −0.5 plus a non-negative term.
+    assert!(rows(&table).iter().all(|r| r[13] >= -0.5));
+}

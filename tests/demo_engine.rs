@@ -1054,3 +1054,23 @@ fn the_demo_campaign_checks_expands_and_one_window_runs() {
     // State 11 is λ = 1: u11 is ligand ork-08's solvent well, c = −0.5 plus a non-negative term.
     assert!(rows(&table).iter().all(|r| r[13] >= -0.5));
 }
+
+#[test]
+fn a_damaged_checkpoint_means_starting_over() {
+    let dir = tempfile::tempdir().unwrap();
+    let mut cfg = config(dir.path(), unequal(), vec![0.0, 1.0], 1, 300);
+    let clean = fresh_run(dir.path(), &cfg);
+    cfg.faults.fail_after = Some(150);
+    run(&cfg).unwrap();
+    std::fs::write(cfg.checkpoint.as_ref().unwrap(), "{\"format\": trunc").unwrap();
+    cfg.attempt = 2;
+    match run(&cfg).unwrap() {
+        RunOutcome::Completed {
+            resumed_from: None,
+            notes,
+            ..
+        } => assert!(notes[0].contains("starting the window over"), "{notes:?}"),
+        other => panic!("{other:?}"),
+    }
+    assert_eq!(std::fs::read(&cfg.output).unwrap(), clean);
+}

@@ -204,7 +204,14 @@ pub fn run(cfg: &RunConfig) -> Result<RunOutcome, DemoError> {
     let mut notes = Vec::new();
 
     let resume = match &cfg.checkpoint {
-        Some(p) => match Checkpoint::load(p)? {
+        Some(p) => match Checkpoint::load(p).or_else(|e| match e {
+            // Starting over gives the same bytes, so a damaged checkpoint costs only time.
+            DemoError::Format { .. } => {
+                notes.push(format!("{e}; starting the window over"));
+                Ok(None)
+            }
+            other => Err(other),
+        })? {
             Some(ck) => {
                 if ck.fingerprint != fingerprint {
                     return Err(DemoError::CheckpointMismatch {

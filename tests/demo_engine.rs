@@ -288,8 +288,8 @@ fn checkpoint_interval_and_restart_do_not_change_the_bytes() {
         "{out:?}"
     );
     assert_eq!(std::fs::read(&cfg.output).unwrap(), clean);
-    // Running again once complete changes nothing.
-    cfg.attempt = 3;
+    // Running again once complete changes nothing, faults or not.
+    cfg.attempt = 1;
     assert!(matches!(
         run(&cfg).unwrap(),
         RunOutcome::Completed { written: 0, .. }
@@ -1073,4 +1073,19 @@ fn a_damaged_checkpoint_means_starting_over() {
         other => panic!("{other:?}"),
     }
     assert_eq!(std::fs::read(&cfg.output).unwrap(), clean);
+}
+
+#[test]
+fn the_time_column_counts_frames_in_time_steps() {
+    let dir = tempfile::tempdir().unwrap();
+    let mut cfg = config(dir.path(), unequal(), vec![0.0, 1.0], 0, 5);
+    cfg.time_step = 0.1;
+    run(&cfg).unwrap();
+    let text = std::fs::read_to_string(&cfg.output).unwrap();
+    let times: Vec<&str> = text
+        .lines()
+        .skip(6)
+        .map(|l| l.split('\t').next().unwrap())
+        .collect();
+    assert_eq!(times, ["0", "0.1", "0.2", "0.3", "0.4"]);
 }

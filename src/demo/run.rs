@@ -195,6 +195,11 @@ impl Output {
     }
 }
 
+/// The time of a frame, rounded to 1e-6 ps so that e.g. 3 × 0.1 prints as 0.3.
+fn frame_time(frame: u64, time_step: f64) -> f64 {
+    (frame as f64 * time_step * 1e6).round() / 1e6
+}
+
 /// Runs one window. Resumes from the checkpoint when one exists (and matches these
 /// parameters); otherwise starts over and overwrites the output.
 pub fn run(cfg: &RunConfig) -> Result<RunOutcome, DemoError> {
@@ -322,7 +327,7 @@ pub fn run(cfg: &RunConfig) -> Result<RunOutcome, DemoError> {
         line.clear();
         table::push_row(
             &mut line,
-            frame as f64 * cfg.time_step,
+            frame_time(frame, cfg.time_step),
             (ub - ua) * scale,
             cfg.lambdas
                 .iter()

@@ -142,10 +142,8 @@ impl RunConfig {
             Some(s) => s.clone(),
             None => {
                 let lam = self.lambdas[self.state];
-                let w = self.displace * self.system.sigma(lam);
-                let mut x = vec![w; self.system.dimensions];
-                x[0] += self.system.center(lam);
-                x
+                let s = &self.system;
+                super::start::displaced(s.center(lam), s.sigma(lam), s.dimensions, self.displace)
             }
         }
     }

@@ -835,25 +835,9 @@ fn the_scenario_spans_about_four_kcal_per_mol() {
     );
 }
 
-/// `shell_quote` as the render module documents it: POSIX single quotes. Here only so
-/// that the demo templates can be rendered without the campaign machinery.
-fn shell_quote(
-    v: &tera::Value,
-    _: &std::collections::HashMap<String, tera::Value>,
-) -> tera::Result<tera::Value> {
-    let s = match v {
-        tera::Value::String(s) => s.clone(),
-        other => other.to_string(),
-    };
-    Ok(tera::Value::String(format!(
-        "'{}'",
-        s.replace('\'', r"'\''")
-    )))
-}
-
 fn render(template: &str, ctx: &serde_json::Value) -> String {
     let mut t = tera::Tera::default();
-    t.register_filter("shell_quote", shell_quote);
+    legwork::render::register_filters(&mut t);
     let src =
         std::fs::read_to_string(Path::new(ROOT).join("templates/demo").join(template)).unwrap();
     t.add_raw_template(template, &src).unwrap();
@@ -937,7 +921,7 @@ fn the_demo_stage_templates_run_the_engine() {
     );
     let prod = stage_context(&root, "production", Some(7), serde_json::json!({}));
     let script = render("production.sh.tera", &prod);
-    assert!(script.contains("--fault-fail-probability '0'"));
+    assert!(script.contains("--fault-fail-probability 0 "));
     assert!(!script.contains("--fault-truncate") && !script.contains("--fault-signal"));
     let out = bash(&script, tmp.path());
     assert!(
@@ -981,12 +965,12 @@ fn the_production_template_wires_the_fault_vars() {
         &stage_context(&root, "production", Some(0), vars),
     );
     for flag in [
-        "--fault-fail-after '300'",
+        "--fault-fail-after 300",
         "--fault-truncate",
-        "--fault-signal 'TERM'",
-        "--fault-hang-attempt '4'",
-        "--fault-fail-probability '0.25'",
-        "--fault-attempts '2'",
+        "--fault-signal TERM",
+        "--fault-hang-attempt 4",
+        "--fault-fail-probability 0.25",
+        "--fault-attempts 2",
     ] {
         assert!(script.contains(flag), "{flag} missing in\n{script}");
     }

@@ -3,12 +3,18 @@
 use super::config::{ColumnRef, ColumnsConfig, DudlColumns};
 use super::error::ReadError;
 use super::meta::{read_preamble, WindowHint};
-use super::parse::{split_header, Delim, RowSpec, Slot, parse_rows};
+use super::parse::{parse_rows, split_header, Delim, RowSpec, Slot};
 use super::samples::WindowSamples;
 use crate::units::EnergyUnit;
 use std::path::Path;
 
-fn resolve(r: &ColumnRef, headers: &[String], has_header: bool, path: &Path, line: usize) -> Result<usize, ReadError> {
+fn resolve(
+    r: &ColumnRef,
+    headers: &[String],
+    has_header: bool,
+    path: &Path,
+    line: usize,
+) -> Result<usize, ReadError> {
     match r {
         ColumnRef::Index(i) if *i < headers.len() => Ok(*i),
         ColumnRef::Index(i) => Err(ReadError::Header {
@@ -43,35 +49,80 @@ pub(crate) fn parse_columns(
     let delim = match cfg.delimiter {
         None => Delim::Whitespace,
         Some(c) if c.is_ascii() => Delim::Byte(c as u8),
-        Some(c) => return Err(ReadError::Config(format!("delimiter '{c}' is not a single ASCII character"))),
+        Some(c) => {
+            return Err(ReadError::Config(format!(
+                "delimiter '{c}' is not a single ASCII character"
+            )))
+        }
     };
     let pre = read_preamble(path, text, &comments)?;
     let meta = &pre.meta;
-    let header_err = |line: usize, problem: String| ReadError::Header { path: path.to_path_buf(), line, problem };
-    let (first, first_no) = pre.first_line.clone().ok_or_else(|| header_err(pre.at_first.1, "no data lines".into()))?;
+    let header_err = |line: usize, problem: String| ReadError::Header {
+        path: path.to_path_buf(),
+        line,
+        problem,
+    };
+    let (first, first_no) = pre
+        .first_line
+        .clone()
+        .ok_or_else(|| header_err(pre.at_first.1, "no data lines".into()))?;
     let fields = split_header(&first, delim);
     let (headers, data_start) = if cfg.header {
         (fields, pre.after_first)
     } else {
-        ((1..=fields.len()).map(|i| format!("column {i}")).collect::<Vec<_>>(), pre.at_first)
+        (
+            (1..=fields.len())
+                .map(|i| format!("column {i}"))
+                .collect::<Vec<_>>(),
+            pre.at_first,
+        )
     };
     let k = cfg.energies.len();
-    let temperature_k = hint.temperature_k.or(cfg.temperature_k).or(meta.temperature_k).ok_or_else(|| {
-        ReadError::Config(format!("{}: no temperature: set reader.columns.temperature_K", path.display()))
-    })?;
+    let temperature_k = hint
+        .temperature_k
+        .or(cfg.temperature_k)
+        .or(meta.temperature_k)
+        .ok_or_else(|| {
+            ReadError::Config(format!(
+                "{}: no temperature: set reader.columns.temperature_K",
+                path.display()
+            ))
+        })?;
     let state = hint.state.or(meta.state).ok_or_else(|| {
         header_err(1, "which state did this window sample? add a '# state: N' comment line or read it through a campaign, which knows".into())
     })?;
     if state >= k {
-        return Err(header_err(1, format!("state {state} is out of range: reader.columns.energies lists {k} states")));
+        return Err(header_err(
+            1,
+            format!("state {state} is out of range: reader.columns.energies lists {k} states"),
+        ));
     }
     let mut warnings = Vec::new();
     let lambdas = match hint.lambdas.clone().or_else(|| meta.lambdas.clone()) {
         Some(l) if l.len() == k => l,
-        Some(l) => return Err(header_err(1, format!("the λ list has {} values but reader.columns.energies lists {k} states", l.len()))),
+        Some(l) => {
+            return Err(header_err(
+                1,
+                format!(
+                    "the λ list has {} values but reader.columns.energies lists {k} states",
+                    l.len()
+                ),
+            ))
+        }
         None => {
-            warnings.push(format!("{}: no λ list; assumed evenly spaced λ from 0 to 1 over the {k} states", path.display()));
-            (0..k).map(|i| if k > 1 { i as f64 / (k - 1) as f64 } else { 0.0 }).collect()
+            warnings.push(format!(
+                "{}: no λ list; assumed evenly spaced λ from 0 to 1 over the {k} states",
+                path.display()
+            ));
+            (0..k)
+                .map(|i| {
+                    if k > 1 {
+                        i as f64 / (k - 1) as f64
+                    } else {
+                        0.0
+                    }
+                })
+                .collect()
         }
     };
     let mut slots = vec![Slot::Skip; headers.len()];
@@ -81,7 +132,9 @@ pub(crate) fn parse_columns(
     let named = match &cfg.dudl {
         None => Vec::new(),
         Some(DudlColumns::One(r)) => vec![("lambda".to_string(), r.clone())],
-        Some(DudlColumns::PerComponent(m)) => m.iter().map(|(n, r)| (n.clone(), r.clone())).collect(),
+        Some(DudlColumns::PerComponent(m)) => {
+            m.iter().map(|(n, r)| (n.clone(), r.clone())).collect()
+        }
     };
     let mut components = Vec::new();
     let mut component_lambdas = Vec::new();
@@ -100,7 +153,13 @@ pub(crate) fn parse_columns(
                 .ok_or_else(|| header_err(1, format!("no λ list for component '{name}'; add a '# lambdas.{name}: ...' comment line")))?
         };
         if l.len() != k {
-            return Err(header_err(1, format!("the λ list of component '{name}' has {} values, not {k}", l.len())));
+            return Err(header_err(
+                1,
+                format!(
+                    "the λ list of component '{name}' has {} values, not {k}",
+                    l.len()
+                ),
+            ));
         }
         component_lambdas.push(l);
     }

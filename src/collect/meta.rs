@@ -110,7 +110,13 @@ pub(crate) fn read_preamble(
     })
 }
 
-fn apply(meta: &mut Meta, path: &Path, line_no: usize, key: &str, value: &str) -> Result<(), ReadError> {
+fn apply(
+    meta: &mut Meta,
+    path: &Path,
+    line_no: usize,
+    key: &str,
+    value: &str,
+) -> Result<(), ReadError> {
     let bad = |problem: String| ReadError::Header {
         path: path.to_path_buf(),
         line: line_no,
@@ -122,7 +128,11 @@ fn apply(meta: &mut Meta, path: &Path, line_no: usize, key: &str, value: &str) -
                 .parse::<f64>()
                 .ok()
                 .filter(|t| t.is_finite() && *t > 0.0)
-                .ok_or_else(|| bad(format!("temperature_K '{value}' is not a positive number of kelvin")))?;
+                .ok_or_else(|| {
+                    bad(format!(
+                        "temperature_K '{value}' is not a positive number of kelvin"
+                    ))
+                })?;
             meta.temperature_k = Some(t);
         }
         "energy_unit" => {
@@ -130,7 +140,9 @@ fn apply(meta: &mut Meta, path: &Path, line_no: usize, key: &str, value: &str) -
         }
         "state" => {
             meta.state = Some(value.parse::<usize>().map_err(|_| {
-                bad(format!("state '{value}' is not a 0-based state index (0, 1, 2, ...)"))
+                bad(format!(
+                    "state '{value}' is not a 0-based state index (0, 1, 2, ...)"
+                ))
             })?);
         }
         "lambdas" => meta.lambdas = Some(numbers(path, line_no, key, value)?),

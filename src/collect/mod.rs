@@ -47,7 +47,10 @@ pub fn parse_window(
         ReaderFormat::WindowTable => window_table::parse_window_table(path, text, hint),
         ReaderFormat::Columns => {
             let cols = config.columns.as_ref().ok_or_else(|| {
-                ReadError::Config("`format: columns` needs a `columns:` section (energies, energy_unit, ...)".into())
+                ReadError::Config(
+                    "`format: columns` needs a `columns:` section (energies, energy_unit, ...)"
+                        .into(),
+                )
             })?;
             columns::parse_columns(path, text, cols, hint)
         }
@@ -108,7 +111,8 @@ pub fn assemble(mut windows: Vec<WindowSamples>) -> Result<LegSamples, ReadError
         if w.has_dudl() != first.has_dudl() {
             return Err(ReadError::Leg(format!(
                 "{} has dU/dλ columns but {} has none; every window must write the same columns",
-                name(if w.has_dudl() { w } else { first }), name(if w.has_dudl() { first } else { w })
+                name(if w.has_dudl() { w } else { first }),
+                name(if w.has_dudl() { first } else { w })
             )));
         }
     }
@@ -116,7 +120,9 @@ pub fn assemble(mut windows: Vec<WindowSamples>) -> Result<LegSamples, ReadError
         if pair[0].state == pair[1].state {
             return Err(ReadError::Leg(format!(
                 "{} and {} both sampled state {}; give one window per state",
-                pair[0].source.display(), pair[1].source.display(), pair[0].state
+                pair[0].source.display(),
+                pair[1].source.display(),
+                pair[0].state
             )));
         }
     }
@@ -132,11 +138,19 @@ pub fn assemble(mut windows: Vec<WindowSamples>) -> Result<LegSamples, ReadError
 
 /// The "done means done" check of a finished window: its output parses and holds
 /// at least `min_frames` frames. Returns the frame count.
-pub fn validate_output(path: &Path, config: &ReaderConfig, min_frames: Option<u64>) -> Result<u64, ReadError> {
+pub fn validate_output(
+    path: &Path,
+    config: &ReaderConfig,
+    min_frames: Option<u64>,
+) -> Result<u64, ReadError> {
     let w = read_window(path, config)?;
     let frames = w.frames as u64;
     match min_frames {
-        Some(min) if frames < min => Err(ReadError::TooFewFrames { path: path.to_path_buf(), frames, min }),
+        Some(min) if frames < min => Err(ReadError::TooFewFrames {
+            path: path.to_path_buf(),
+            frames,
+            min,
+        }),
         _ => Ok(frames),
     }
 }

@@ -182,8 +182,10 @@ fn parse_line(
             },
             slot => {
                 let start = p;
-                let (v, used): (f64, usize) = fast_float2::parse_partial(&line[p..])
-                    .map_err(|_| value_error(path, line, line_no, start, spec, f, "is not a number"))?;
+                let (v, used): (f64, usize) =
+                    fast_float2::parse_partial(&line[p..]).map_err(|_| {
+                        value_error(path, line, line_no, start, spec, f, "is not a number")
+                    })?;
                 p += used;
                 if !v.is_finite() {
                     return Err(value_error(
@@ -210,7 +212,15 @@ fn parse_line(
                         Delim::Whitespace => is_space(line[p]),
                     };
                 if !ok_end {
-                    return Err(value_error(path, line, line_no, start, spec, f, "is not a number"));
+                    return Err(value_error(
+                        path,
+                        line,
+                        line_no,
+                        start,
+                        spec,
+                        f,
+                        "is not a number",
+                    ));
                 }
             }
         }

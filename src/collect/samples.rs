@@ -55,7 +55,11 @@ impl WindowSamples {
         } else {
             reduced.len() / n_states
         };
-        assert_eq!(frames * n_states, reduced.len(), "reduced is frames × states");
+        assert_eq!(
+            frames * n_states,
+            reduced.len(),
+            "reduced is frames × states"
+        );
         assert!(
             dudl.is_empty() || dudl.len() == frames,
             "dudl has one value per frame"

@@ -41,19 +41,27 @@ pub(crate) fn parse_window_table(
     }
     let meta = &pre.meta;
     let (header, header_line) = pre.first_line.clone().ok_or_else(|| {
-        header_err(pre.at_first.1, "no header line (time, dudl, u0, ...) and no data: the window wrote nothing yet".into())
+        header_err(
+            pre.at_first.1,
+            "no header line (time, dudl, u0, ...) and no data: the window wrote nothing yet".into(),
+        )
     })?;
     let temperature_k = hint
         .temperature_k
         .or(meta.temperature_k)
         .ok_or_else(|| header_err(1, "no '# temperature_K: ...' line; add it (kelvin)".into()))?;
-    let unit = meta
-        .energy_unit
-        .ok_or_else(|| header_err(1, "no '# energy_unit: ...' line; add one of kJ/mol, kcal/mol, kT".into()))?;
-    let state = hint
-        .state
-        .or(meta.state)
-        .ok_or_else(|| header_err(1, "no '# state: N' line (0-based index of the sampled state); add it".into()))?;
+    let unit = meta.energy_unit.ok_or_else(|| {
+        header_err(
+            1,
+            "no '# energy_unit: ...' line; add one of kJ/mol, kcal/mol, kT".into(),
+        )
+    })?;
+    let state = hint.state.or(meta.state).ok_or_else(|| {
+        header_err(
+            1,
+            "no '# state: N' line (0-based index of the sampled state); add it".into(),
+        )
+    })?;
     let component_lambdas: Vec<(String, Vec<f64>)> = match &hint.component_lambdas {
         Some(c) => c.clone(),
         None => meta.component_lambdas.clone(),
@@ -62,13 +70,29 @@ pub(crate) fn parse_window_table(
         Some(l) => l,
         None if !component_lambdas.is_empty() => {
             let k = component_lambdas[0].1.len();
-            (0..k).map(|i| if k > 1 { i as f64 / (k - 1) as f64 } else { 0.0 }).collect()
+            (0..k)
+                .map(|i| {
+                    if k > 1 {
+                        i as f64 / (k - 1) as f64
+                    } else {
+                        0.0
+                    }
+                })
+                .collect()
         }
-        None => return Err(header_err(1, "no '# lambdas: ...' line (λ of every state, in index order); add it".into())),
+        None => {
+            return Err(header_err(
+                1,
+                "no '# lambdas: ...' line (λ of every state, in index order); add it".into(),
+            ))
+        }
     };
     let k = lambdas.len();
     if k == 0 {
-        return Err(header_err(1, "'# lambdas:' is empty; list the λ of every state".into()));
+        return Err(header_err(
+            1,
+            "'# lambdas:' is empty; list the λ of every state".into(),
+        ));
     }
     for (name, l) in &component_lambdas {
         if l.len() != k {
@@ -81,7 +105,10 @@ pub(crate) fn parse_window_table(
     if state >= k {
         return Err(header_err(
             1,
-            format!("state {state} is out of range: the leg has {k} states (0..{})", k - 1),
+            format!(
+                "state {state} is out of range: the leg has {k} states (0..{})",
+                k - 1
+            ),
         ));
     }
     let (components, comp_l): (Vec<String>, Vec<Vec<f64>>) = if component_lambdas.is_empty() {
@@ -94,15 +121,35 @@ pub(crate) fn parse_window_table(
     for j in 0..k {
         let name = format!("u{j}");
         let i = headers.iter().position(|h| *h == name).ok_or_else(|| {
-            header_err(header_line, format!("no column '{name}': a leg with {k} states needs energy columns u0..u{}", k - 1))
+            header_err(
+                header_line,
+                format!(
+                    "no column '{name}': a leg with {k} states needs energy columns u0..u{}",
+                    k - 1
+                ),
+            )
         })?;
         slots[i] = Slot::Energy(j);
     }
     let single = components.len() == 1 && components[0] == "lambda";
     for (c, name) in components.iter().enumerate() {
-        let col = if single { "dudl".to_string() } else { format!("dudl.{name}") };
+        let col = if single {
+            "dudl".to_string()
+        } else {
+            format!("dudl.{name}")
+        };
         let i = headers.iter().position(|h| *h == col).ok_or_else(|| {
-            header_err(header_line, format!("no column '{col}' (dU/dλ{}); add it to the header", if single { String::new() } else { format!(" of component {name}") }))
+            header_err(
+                header_line,
+                format!(
+                    "no column '{col}' (dU/dλ{}); add it to the header",
+                    if single {
+                        String::new()
+                    } else {
+                        format!(" of component {name}")
+                    }
+                ),
+            )
         })?;
         slots[i] = Slot::Dudl(c);
     }

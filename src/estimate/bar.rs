@@ -58,7 +58,9 @@ pub fn bar(wf: &[f64], wr: &[f64]) -> Result<(f64, f64), EstimateError> {
         step *= 2.0;
         lo -= step;
         if step > 1e6 {
-            return Err(EstimateError::NotConverged("BAR: no bracket for ΔF (the two states do not overlap at all)".into()));
+            return Err(EstimateError::NotConverged(
+                "BAR: no bracket for ΔF (the two states do not overlap at all)".into(),
+            ));
         }
     }
     step = 1.0;
@@ -66,7 +68,9 @@ pub fn bar(wf: &[f64], wr: &[f64]) -> Result<(f64, f64), EstimateError> {
         step *= 2.0;
         hi += step;
         if step > 1e6 {
-            return Err(EstimateError::NotConverged("BAR: no bracket for ΔF (the two states do not overlap at all)".into()));
+            return Err(EstimateError::NotConverged(
+                "BAR: no bracket for ΔF (the two states do not overlap at all)".into(),
+            ));
         }
     }
     x = x.clamp(lo, hi);
@@ -90,7 +94,9 @@ pub fn bar(wf: &[f64], wr: &[f64]) -> Result<(f64, f64), EstimateError> {
         x = next;
     }
     if !converged {
-        return Err(EstimateError::NotConverged("BAR: the self-consistent iteration did not converge".into()));
+        return Err(EstimateError::NotConverged(
+            "BAR: the self-consistent iteration did not converge".into(),
+        ));
     }
     let n = nf + nr;
     let mut acc = 0.0;

@@ -45,7 +45,10 @@ mod tests {
             let want = x.exp();
             let got = exp_nonpos(x);
             if x > -700.0 {
-                assert!(((got - want) / want).abs() < 2e-15, "x={x} got={got} want={want}");
+                assert!(
+                    ((got - want) / want).abs() < 2e-15,
+                    "x={x} got={got} want={want}"
+                );
             } else {
                 assert!(got < 1e-300);
             }

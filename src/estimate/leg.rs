@@ -41,11 +41,17 @@ pub fn energy_series(w: &WindowSamples) -> Vec<f64> {
 /// The series for TI: dU/dλ summed over components.
 pub fn dudl_series(w: &WindowSamples) -> Vec<f64> {
     let c = w.components.len();
-    (0..w.frames).map(|n| (0..c).map(|j| w.dudl_at(n, j)).sum()).collect()
+    (0..w.frames)
+        .map(|n| (0..c).map(|j| w.dudl_at(n, j)).sum())
+        .collect()
 }
 
 /// Equilibration and decorrelation of one series under the options.
-fn select(series: &[f64], opts: &EstimateOptions, label: &str) -> Result<(Equilibrated, Vec<usize>), EstimateError> {
+fn select(
+    series: &[f64],
+    opts: &EstimateOptions,
+    label: &str,
+) -> Result<(Equilibrated, Vec<usize>), EstimateError> {
     let n = series.len();
     let eq = match opts.equilibration {
         Equilibration::Auto => detect_equilibration(series),
@@ -74,7 +80,10 @@ fn label(w: &WindowSamples) -> String {
 /// Estimates one leg: G(last state) − G(first state) by every method in `opts`,
 /// in kT, with MBAR's free energies, covariance and overlap, per-window
 /// diagnostics, convergence series and warnings.
-pub fn estimate_leg(leg: &LegSamples, opts: &EstimateOptions) -> Result<LegEstimate, EstimateError> {
+pub fn estimate_leg(
+    leg: &LegSamples,
+    opts: &EstimateOptions,
+) -> Result<LegEstimate, EstimateError> {
     let k = leg.n_states();
     if k < 2 || leg.windows.len() != k {
         return Err(EstimateError::Insufficient(format!(
@@ -84,7 +93,10 @@ pub fn estimate_leg(leg: &LegSamples, opts: &EstimateOptions) -> Result<LegEstim
     }
     let mut warnings = leg.warnings.clone();
     let has_dudl = leg.windows.iter().all(|w| w.has_dudl());
-    let mut methods: Vec<Method> = Method::ALL.into_iter().filter(|m| opts.methods.contains(m)).collect();
+    let mut methods: Vec<Method> = Method::ALL
+        .into_iter()
+        .filter(|m| opts.methods.contains(m))
+        .collect();
     if !has_dudl && methods.iter().any(|m| m.uses_dudl()) {
         warnings.push("TI skipped: the window files have no dU/dλ column; configure one in reader.columns.dudl".into());
         methods.retain(|m| !m.uses_dudl());
@@ -107,8 +119,12 @@ pub fn estimate_leg(leg: &LegSamples, opts: &EstimateOptions) -> Result<LegEstim
         None
     };
     let used: Vec<&[usize]> = energy.iter().map(|e| e.1.as_slice()).collect();
-    let ti_used: Option<Vec<&[usize]>> = ti_sel.as_ref().map(|s| s.iter().map(|e| e.1.as_slice()).collect());
-    let ti_g: Option<Vec<f64>> = ti_sel.as_ref().map(|s| s.iter().map(|e| e.0.inefficiency).collect());
+    let ti_used: Option<Vec<&[usize]>> = ti_sel
+        .as_ref()
+        .map(|s| s.iter().map(|e| e.1.as_slice()).collect());
+    let ti_g: Option<Vec<f64>> = ti_sel
+        .as_ref()
+        .map(|s| s.iter().map(|e| e.0.inefficiency).collect());
 
     let windows: Vec<WindowDiagnostics> = leg
         .windows
@@ -144,16 +160,30 @@ pub fn estimate_leg(leg: &LegSamples, opts: &EstimateOptions) -> Result<LegEstim
 
     let mut estimates = BTreeMap::new();
     let mut pairs: Vec<PairEstimate> = (0..k - 1)
-        .map(|i| PairEstimate { from: i, to: i + 1, estimates: BTreeMap::new() })
+        .map(|i| PairEstimate {
+            from: i,
+            to: i + 1,
+            estimates: BTreeMap::new(),
+        })
         .collect();
     let mut ti_points = Vec::new();
 
     let want_bar = methods.contains(&Method::Bar) || methods.contains(&Method::Mbar);
-    let bar_pairs = if want_bar { Some(bar_pairs(leg, &used)?) } else { None };
+    let bar_pairs = if want_bar {
+        Some(bar_pairs(leg, &used)?)
+    } else {
+        None
+    };
     for m in &methods {
         let est = match m {
             Method::Ti | Method::TiSpline => {
-                let (d, pts) = ti(leg, ti_used.as_ref().expect("selected"), ti_g.as_ref().expect("selected"), *m == Method::TiSpline, opts.subsample);
+                let (d, pts) = ti(
+                    leg,
+                    ti_used.as_ref().expect("selected"),
+                    ti_g.as_ref().expect("selected"),
+                    *m == Method::TiSpline,
+                    opts.subsample,
+                );
                 if ti_points.is_empty() {
                     ti_points = pts;
                 }
@@ -191,13 +221,27 @@ pub fn estimate_leg(leg: &LegSamples, opts: &EstimateOptions) -> Result<LegEstim
     let solve_seconds = t0.elapsed().as_secs_f64();
     let (d, s) = sol.difference(0, k - 1);
     if methods.contains(&Method::Mbar) {
-        estimates.insert(Method::Mbar, DeltaG { delta_g: d, sigma: s });
+        estimates.insert(
+            Method::Mbar,
+            DeltaG {
+                delta_g: d,
+                sigma: s,
+            },
+        );
         for p in pairs.iter_mut() {
             let (d, s) = sol.difference(p.from, p.to);
-            p.estimates.insert(Method::Mbar, DeltaG { delta_g: d, sigma: s });
+            p.estimates.insert(
+                Method::Mbar,
+                DeltaG {
+                    delta_g: d,
+                    sigma: s,
+                },
+            );
         }
     }
-    let overlap: Vec<Vec<f64>> = (0..k).map(|i| sol.overlap[i * k..(i + 1) * k].to_vec()).collect();
+    let overlap: Vec<Vec<f64>> = (0..k)
+        .map(|i| sol.overlap[i * k..(i + 1) * k].to_vec())
+        .collect();
     let min_adjacent_overlap = sol.min_adjacent_overlap();
     for i in 0..k - 1 {
         let o = overlap[i][i + 1].min(overlap[i + 1][i]);
@@ -224,19 +268,35 @@ pub fn estimate_leg(leg: &LegSamples, opts: &EstimateOptions) -> Result<LegEstim
 
     let convergence = if opts.convergence {
         let method = methods.first().copied().unwrap_or(Method::Mbar);
-        Some(convergence(leg, method, &used, ti_used.as_deref(), ti_g.as_deref(), &sol, opts.subsample)?)
+        Some(convergence(
+            leg,
+            method,
+            &used,
+            ti_used.as_deref(),
+            ti_g.as_deref(),
+            &sol,
+            opts.subsample,
+        )?)
     } else {
         None
     };
 
     let sigma_f = (0..k).map(|j| sol.difference(0, j).1).collect();
-    let covariance = (0..k).map(|i| sol.covariance[i * k..(i + 1) * k].to_vec()).collect();
+    let covariance = (0..k)
+        .map(|i| sol.covariance[i * k..(i + 1) * k].to_vec())
+        .collect();
     Ok(LegEstimate {
         n_states: k,
         temperature_k: leg.temperature_k,
         lambdas: leg.lambdas.clone(),
         estimates,
-        mbar: Some(MbarDetails { f: sol.f.clone(), sigma_f, covariance, iterations: sol.iterations, solve_seconds }),
+        mbar: Some(MbarDetails {
+            f: sol.f.clone(),
+            sigma_f,
+            covariance,
+            iterations: sol.iterations,
+            solve_seconds,
+        }),
         overlap: Some(overlap),
         min_adjacent_overlap,
         windows,
@@ -255,20 +315,30 @@ fn sum(per: &[DeltaG]) -> DeltaG {
 }
 
 fn works(w: &WindowSamples, rows: &[usize], to: usize) -> Vec<f64> {
-    rows.iter().map(|&n| {
-        let r = w.row(n);
-        r[to] - r[w.state]
-    }).collect()
+    rows.iter()
+        .map(|&n| {
+            let r = w.row(n);
+            r[to] - r[w.state]
+        })
+        .collect()
 }
 
 fn pair_err(i: usize, e: EstimateError) -> EstimateError {
     match e {
-        EstimateError::Insufficient(m) => EstimateError::Insufficient(format!("states {i} and {}: {m}", i + 1)),
-        EstimateError::NotConverged(m) => EstimateError::NotConverged(format!("states {i} and {}: {m}", i + 1)),
+        EstimateError::Insufficient(m) => {
+            EstimateError::Insufficient(format!("states {i} and {}: {m}", i + 1))
+        }
+        EstimateError::NotConverged(m) => {
+            EstimateError::NotConverged(format!("states {i} and {}: {m}", i + 1))
+        }
     }
 }
 
-fn exp_pairs(leg: &LegSamples, used: &[&[usize]], forward: bool) -> Result<Vec<DeltaG>, EstimateError> {
+fn exp_pairs(
+    leg: &LegSamples,
+    used: &[&[usize]],
+    forward: bool,
+) -> Result<Vec<DeltaG>, EstimateError> {
     (0..leg.n_states() - 1)
         .map(|i| {
             let r = if forward {
@@ -276,7 +346,11 @@ fn exp_pairs(leg: &LegSamples, used: &[&[usize]], forward: bool) -> Result<Vec<D
             } else {
                 exp_average(&works(&leg.windows[i + 1], used[i + 1], i)).map(|(d, s)| (-d, s))
             };
-            r.map(|(d, s)| DeltaG { delta_g: d, sigma: s }).map_err(|e| pair_err(i, e))
+            r.map(|(d, s)| DeltaG {
+                delta_g: d,
+                sigma: s,
+            })
+            .map_err(|e| pair_err(i, e))
         })
         .collect()
 }
@@ -287,22 +361,48 @@ fn bar_pairs(leg: &LegSamples, used: &[&[usize]]) -> Result<Vec<DeltaG>, Estimat
         .map(|i| {
             let wf = works(&leg.windows[i], used[i], i + 1);
             let wr = works(&leg.windows[i + 1], used[i + 1], i);
-            bar(&wf, &wr).map(|(d, s)| DeltaG { delta_g: d, sigma: s }).map_err(|e| pair_err(i, e))
+            bar(&wf, &wr)
+                .map(|(d, s)| DeltaG {
+                    delta_g: d,
+                    sigma: s,
+                })
+                .map_err(|e| pair_err(i, e))
         })
         .collect()
 }
 
-fn mbar(leg: &LegSamples, used: &[&[usize]], initial: Option<Vec<f64>>) -> Result<MbarSolution, EstimateError> {
+fn mbar(
+    leg: &LegSamples,
+    used: &[&[usize]],
+    initial: Option<Vec<f64>>,
+) -> Result<MbarSolution, EstimateError> {
     let blocks: Vec<MbarBlock> = leg
         .windows
         .iter()
         .zip(used)
-        .map(|(w, rows)| MbarBlock { state: w.state, u: &w.reduced, rows })
+        .map(|(w, rows)| MbarBlock {
+            state: w.state,
+            u: &w.reduced,
+            rows,
+        })
         .collect();
-    solve(&blocks, leg.n_states(), &MbarSettings { initial, ..Default::default() })
+    solve(
+        &blocks,
+        leg.n_states(),
+        &MbarSettings {
+            initial,
+            ..Default::default()
+        },
+    )
 }
 
-fn ti(leg: &LegSamples, used: &[&[usize]], g: &[f64], spline: bool, sub: Subsample) -> (DeltaG, Vec<TiPoint>) {
+fn ti(
+    leg: &LegSamples,
+    used: &[&[usize]],
+    g: &[f64],
+    spline: bool,
+    sub: Subsample,
+) -> (DeltaG, Vec<TiPoint>) {
     let mut total = 0.0;
     let mut var = 0.0;
     let mut points = Vec::new();
@@ -314,20 +414,36 @@ fn ti(leg: &LegSamples, used: &[&[usize]], g: &[f64], spline: bool, sub: Subsamp
             let rows = used[i];
             let n = rows.len() as f64;
             let m = rows.iter().map(|&r| w.dudl_at(r, c)).sum::<f64>() / n;
-            let v = rows.iter().map(|&r| (w.dudl_at(r, c) - m).powi(2)).sum::<f64>() / (n - 1.0).max(1.0);
+            let v = rows
+                .iter()
+                .map(|&r| (w.dudl_at(r, c) - m).powi(2))
+                .sum::<f64>()
+                / (n - 1.0).max(1.0);
             // Kept frames that were not subsampled are correlated: scale by g.
             let gi = if sub == Subsample::None { g[i] } else { 1.0 };
             let s = (v * gi / n).sqrt();
             mean.push(m);
             sem.push(s);
-            points.push(TiPoint { state: i, component: name.clone(), lambda: x[i], mean: m, sem: s });
+            points.push(TiPoint {
+                state: i,
+                component: name.clone(),
+                lambda: x[i],
+                mean: m,
+                sem: s,
+            });
         }
         let wts = path_weights(x, spline);
         let (v, s) = integrate(&wts, &mean, &sem);
         total += v;
         var += s * s;
     }
-    (DeltaG { delta_g: total, sigma: var.sqrt() }, points)
+    (
+        DeltaG {
+            delta_g: total,
+            sigma: var.sqrt(),
+        },
+        points,
+    )
 }
 
 fn method_on(
@@ -342,14 +458,26 @@ fn method_on(
     let k = leg.n_states();
     Ok(match method {
         Method::Ti | Method::TiSpline => {
-            ti(leg, ti_used.expect("TI selected"), ti_g.expect("TI selected"), method == Method::TiSpline, sub).0
+            ti(
+                leg,
+                ti_used.expect("TI selected"),
+                ti_g.expect("TI selected"),
+                method == Method::TiSpline,
+                sub,
+            )
+            .0
         }
-        Method::ExpForward | Method::ExpReverse => sum(&exp_pairs(leg, used, method == Method::ExpForward)?),
+        Method::ExpForward | Method::ExpReverse => {
+            sum(&exp_pairs(leg, used, method == Method::ExpForward)?)
+        }
         Method::Bar => sum(&bar_pairs(leg, used)?),
         Method::Mbar => {
             let s = mbar(leg, used, Some(warm.to_vec()))?;
             let (d, e) = s.difference(0, k - 1);
-            DeltaG { delta_g: d, sigma: e }
+            DeltaG {
+                delta_g: d,
+                sigma: e,
+            }
         }
     })
 }
@@ -366,20 +494,33 @@ fn convergence(
 ) -> Result<Convergence, EstimateError> {
     let share = |rows: &[usize], frac: f64, head: bool| -> Vec<usize> {
         let n = ((rows.len() as f64 * frac).ceil() as usize).clamp(2.min(rows.len()), rows.len());
-        if head { rows[..n].to_vec() } else { rows[rows.len() - n..].to_vec() }
+        if head {
+            rows[..n].to_vec()
+        } else {
+            rows[rows.len() - n..].to_vec()
+        }
     };
     let mut points = Vec::new();
     for step in 1..=10 {
         let frac = step as f64 / 10.0;
-        let mut pair = [DeltaG { delta_g: 0.0, sigma: 0.0 }; 2];
+        let mut pair = [DeltaG {
+            delta_g: 0.0,
+            sigma: 0.0,
+        }; 2];
         for (slot, head) in [true, false].into_iter().enumerate() {
             let u: Vec<Vec<usize>> = used.iter().map(|r| share(r, frac, head)).collect();
             let ur: Vec<&[usize]> = u.iter().map(|v| v.as_slice()).collect();
-            let t: Option<Vec<Vec<usize>>> = ti_used.map(|tu| tu.iter().map(|r| share(r, frac, head)).collect());
-            let tr: Option<Vec<&[usize]>> = t.as_ref().map(|t| t.iter().map(|v| v.as_slice()).collect());
+            let t: Option<Vec<Vec<usize>>> =
+                ti_used.map(|tu| tu.iter().map(|r| share(r, frac, head)).collect());
+            let tr: Option<Vec<&[usize]>> =
+                t.as_ref().map(|t| t.iter().map(|v| v.as_slice()).collect());
             pair[slot] = method_on(leg, method, &ur, tr.as_deref(), ti_g, &sol.f, sub)?;
         }
-        points.push(ConvergencePoint { fraction: frac, forward: pair[0], reverse: pair[1] });
+        points.push(ConvergencePoint {
+            fraction: frac,
+            forward: pair[0],
+            reverse: pair[1],
+        });
     }
     Ok(Convergence { method, points })
 }

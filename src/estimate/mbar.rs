@@ -88,13 +88,121 @@ impl MbarSolution {
 struct Pass {
     objective: f64,
     colsum: Vec<f64>,
-    /// Σ_n p_n p_nᵀ (upper triangle filled), only when asked for.
+    /// Σ_n p_n p_nᵀ, `K × K` row-major, only when asked for.
     gram: Vec<f64>,
 }
 
-const CHUNK: usize = 2048;
+/// Passes over the samples made by this process (diagnostics and benchmarks).
+pub static PASSES: std::sync::atomic::AtomicUsize = std::sync::atomic::AtomicUsize::new(0);
+
+/// Samples per work item: the weights of one chunk (CHUNK × K) stay in cache for
+/// the Gram update.
+const CHUNK: usize = 512;
+
+/// Per-thread scratch and sums.
+struct Acc {
+    pass: Pass,
+    buf: Vec<f64>,
+    gram: Option<DMatrix<f64>>,
+    prod: f64,
+    nprod: usize,
+}
+
+/// One chunk of samples: weights, log-sum-exp, column sums, and (when asked) the
+/// Gram matrix Σ p pᵀ through one matrix product per chunk.
+#[inline(always)]
+fn chunk_body(u: &[f64], rows: &[usize], k: usize, c: &[f64], acc: &mut Acc, gram: bool) {
+    let need = if gram { rows.len() * k } else { k };
+    if acc.buf.len() < need {
+        acc.buf.resize(need, 0.0);
+    }
+    for (i, &r) in rows.iter().enumerate() {
+        let urow = &u[r * k..(r + 1) * k];
+        let out = if gram {
+            &mut acc.buf[i * k..(i + 1) * k]
+        } else {
+            &mut acc.buf[..k]
+        };
+        for ((o, cj), uj) in out.iter_mut().zip(c).zip(urow) {
+            *o = cj - uj;
+        }
+        let mut mx = [f64::NEG_INFINITY; 4];
+        for (j, v) in out.iter().enumerate() {
+            let slot = &mut mx[j & 3];
+            *slot = if *v > *slot { *v } else { *slot };
+        }
+        let m = mx[0].max(mx[1]).max(mx[2].max(mx[3]));
+        for o in out.iter_mut() {
+            *o = exp_nonpos(*o - m);
+        }
+        let mut sm = [0.0f64; 4];
+        let mut chunks = out.chunks_exact(4);
+        for q in &mut chunks {
+            for l in 0..4 {
+                sm[l] += q[l];
+            }
+        }
+        let s = (sm[0] + sm[1]) + (sm[2] + sm[3]) + chunks.remainder().iter().sum::<f64>();
+        // ln is taken once per 8 samples, of the product of their sums (each sum lies
+        // in [1, K], so the product cannot overflow for any realistic K).
+        acc.pass.objective += m;
+        acc.prod *= s;
+        acc.nprod += 1;
+        if acc.nprod == 8 {
+            acc.pass.objective += acc.prod.ln();
+            acc.prod = 1.0;
+            acc.nprod = 0;
+        }
+        let inv = 1.0 / s;
+        for (cs, v) in acc.pass.colsum.iter_mut().zip(out.iter_mut()) {
+            *v *= inv;
+            *cs += *v;
+        }
+    }
+    if gram {
+        let r = rows.len();
+        let p = &acc.buf[..r * k];
+        // The chunk's weights read as K × r (column = sample) and as its transpose.
+        let a = nalgebra::DMatrixView::from_slice(p, k, r);
+        let at = nalgebra::DMatrixView::from_slice_with_strides(p, r, k, k, 1);
+        acc.gram
+            .as_mut()
+            .expect("gram pass")
+            .gemm(1.0, &a, &at, 1.0);
+    }
+}
+
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx2")]
+unsafe fn chunk_avx2(u: &[f64], rows: &[usize], k: usize, c: &[f64], acc: &mut Acc, gram: bool) {
+    chunk_body(u, rows, k, c, acc, gram)
+}
+
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx512f")]
+unsafe fn chunk_avx512(u: &[f64], rows: &[usize], k: usize, c: &[f64], acc: &mut Acc, gram: bool) {
+    chunk_body(u, rows, k, c, acc, gram)
+}
+
+fn chunk(u: &[f64], rows: &[usize], k: usize, c: &[f64], acc: &mut Acc, gram: bool) {
+    #[cfg(target_arch = "x86_64")]
+    {
+        if std::arch::is_x86_feature_detected!("avx512f") {
+            // SAFETY: the CPU supports AVX-512F, checked just above.
+            unsafe { chunk_avx512(u, rows, k, c, acc, gram) };
+            return;
+        }
+        if std::arch::is_x86_feature_detected!("avx2") {
+            // SAFETY: the CPU supports AVX2, checked just above.
+            unsafe { chunk_avx2(u, rows, k, c, acc, gram) };
+            return;
+        }
+    }
+    chunk_body(u, rows, k, c, acc, gram)
+}
 
 fn pass(blocks: &[MbarBlock], k: usize, c: &[f64], gram: bool) -> Pass {
+    PASSES.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
     let mut work: Vec<(usize, usize, usize)> = Vec::new();
     for (b, blk) in blocks.iter().enumerate() {
         let mut s = 0;
@@ -104,63 +212,53 @@ fn pass(blocks: &[MbarBlock], k: usize, c: &[f64], gram: bool) -> Pass {
             s = e;
         }
     }
-    let empty = || Pass {
-        objective: 0.0,
-        colsum: vec![0.0; k],
-        gram: if gram { vec![0.0; k * k] } else { Vec::new() },
+    let empty = || Acc {
+        pass: Pass {
+            objective: 0.0,
+            colsum: vec![0.0; k],
+            gram: Vec::new(),
+        },
+        buf: Vec::new(),
+        gram: gram.then(|| DMatrix::zeros(k, k)),
+        prod: 1.0,
+        nprod: 0,
     };
-    work.par_iter()
+    let acc = work
+        .par_iter()
         .fold(empty, |mut acc, &(b, s, e)| {
             let blk = &blocks[b];
-            let mut buf = vec![0.0f64; k];
-            for &r in &blk.rows[s..e] {
-                let u = &blk.u[r * k..(r + 1) * k];
-                let mut m = f64::NEG_INFINITY;
-                for j in 0..k {
-                    let v = c[j] - u[j];
-                    buf[j] = v;
-                    m = if v > m { v } else { m };
-                }
-                let mut sum = [0.0f64; 4];
-                for (j, v) in buf.iter_mut().enumerate() {
-                    let x = exp_nonpos(*v - m);
-                    *v = x;
-                    sum[j & 3] += x;
-                }
-                let s = (sum[0] + sum[1]) + (sum[2] + sum[3]);
-                acc.objective += m + s.ln();
-                let inv = 1.0 / s;
-                for (cs, v) in acc.colsum.iter_mut().zip(buf.iter_mut()) {
-                    *v *= inv;
-                    *cs += *v;
-                }
-                if gram {
-                    for a in 0..k {
-                        let pa = buf[a];
-                        let row = &mut acc.gram[a * k + a..(a + 1) * k];
-                        for (g, pb) in row.iter_mut().zip(&buf[a..]) {
-                            *g += pa * pb;
-                        }
-                    }
-                }
-            }
+            chunk(blk.u, &blk.rows[s..e], k, c, &mut acc, gram);
             acc
         })
+        .map(|mut a| {
+            a.pass.objective += a.prod.ln();
+            a.prod = 1.0;
+            a
+        })
         .reduce(empty, |mut a, b| {
-            a.objective += b.objective;
-            for (x, y) in a.colsum.iter_mut().zip(&b.colsum) {
+            a.pass.objective += b.pass.objective;
+            for (x, y) in a.pass.colsum.iter_mut().zip(&b.pass.colsum) {
                 *x += y;
             }
-            for (x, y) in a.gram.iter_mut().zip(&b.gram) {
+            if let (Some(x), Some(y)) = (a.gram.as_mut(), b.gram.as_ref()) {
                 *x += y;
             }
             a
-        })
+        });
+    let mut out = acc.pass;
+    if let Some(g) = acc.gram {
+        out.gram = (0..k * k).map(|i| g[(i / k, i % k)]).collect();
+    }
+    out
 }
 
 /// Solves the MBAR equations for `k` states from the samples in `blocks`.
 /// Every state must have at least one sample.
-pub fn solve(blocks: &[MbarBlock], k: usize, settings: &MbarSettings) -> Result<MbarSolution, EstimateError> {
+pub fn solve(
+    blocks: &[MbarBlock],
+    k: usize,
+    settings: &MbarSettings,
+) -> Result<MbarSolution, EstimateError> {
     let mut counts = vec![0.0f64; k];
     for b in blocks {
         counts[b.state] += b.rows.len() as f64;
@@ -177,16 +275,24 @@ pub fn solve(blocks: &[MbarBlock], k: usize, settings: &MbarSettings) -> Result<
     let f0 = f[0];
     f.iter_mut().for_each(|x| *x -= f0);
     if k == 1 {
-        return Ok(MbarSolution { f, covariance: vec![0.0], overlap: vec![1.0], iterations: 0, gradient: 0.0 });
+        return Ok(MbarSolution {
+            f,
+            covariance: vec![0.0],
+            overlap: vec![1.0],
+            iterations: 0,
+            gradient: 0.0,
+        });
     }
     let shift = |f: &[f64]| -> Vec<f64> { f.iter().zip(&log_n).map(|(a, b)| a + b).collect() };
-    let grad_of = |p: &Pass| -> Vec<f64> { p.colsum.iter().zip(&counts).map(|(a, b)| a - b).collect() };
+    let grad_of =
+        |p: &Pass| -> Vec<f64> { p.colsum.iter().zip(&counts).map(|(a, b)| a - b).collect() };
     let gnorm = |g: &[f64]| g.iter().fold(0.0f64, |m, v| m.max(v.abs())) / n_total;
 
+    // The Gram matrix costs one small matrix product per chunk of samples, so every
+    // pass computes it: each step is a full Newton step, and the pass that shows
+    // convergence also gives the covariance and overlap.
     let mut cur = pass(blocks, k, &shift(&f), true);
     let mut g = grad_of(&cur);
-    let mut chol: Option<nalgebra::Cholesky<f64, nalgebra::Dyn>> = None;
-    let mut need_hessian = true;
     let mut iterations = 0;
     let mut last_norm = gnorm(&g);
     while last_norm >= settings.tolerance {
@@ -197,15 +303,9 @@ pub fn solve(blocks: &[MbarBlock], k: usize, settings: &MbarSettings) -> Result<
             )));
         }
         iterations += 1;
-        if need_hessian || chol.is_none() {
-            if cur.gram.is_empty() {
-                cur = pass(blocks, k, &shift(&f), true);
-                g = grad_of(&cur);
-            }
-            chol = Some(reduced_hessian(&cur, k)?);
-        }
+        let chol = reduced_hessian(&cur, k)?;
         let rhs = DVector::from_iterator(k - 1, g[1..].iter().map(|v| -v));
-        let step = chol.as_ref().expect("factored above").solve(&rhs);
+        let step = chol.solve(&rhs);
         let mut t = 1.0;
         let mut accepted = None;
         for _ in 0..40 {
@@ -213,7 +313,7 @@ pub fn solve(blocks: &[MbarBlock], k: usize, settings: &MbarSettings) -> Result<
             for j in 1..k {
                 trial[j] += t * step[j - 1];
             }
-            let p = pass(blocks, k, &shift(&trial), false);
+            let p = pass(blocks, k, &shift(&trial), true);
             let gt = grad_of(&p);
             let slack = 1e-12 * cur.objective.abs().max(1.0);
             if p.objective <= cur.objective + slack || gnorm(&gt) < last_norm {
@@ -231,9 +331,7 @@ pub fn solve(blocks: &[MbarBlock], k: usize, settings: &MbarSettings) -> Result<
             )));
         };
         let norm = gnorm(&gt);
-        // Keep the factored Hessian while it cuts the gradient at least tenfold per
-        // step; otherwise refresh it.
-        need_hessian = t < 1.0 || norm > 0.1 * last_norm;
+        // Below 1e-8 a step that no longer lowers the gradient has hit rounding noise.
         if norm >= last_norm && last_norm < 1e-8 {
             break;
         }
@@ -242,13 +340,14 @@ pub fn solve(blocks: &[MbarBlock], k: usize, settings: &MbarSettings) -> Result<
         g = gt;
         last_norm = norm;
     }
-    // One pass with the Gram matrix at the solution for the covariance and overlap.
-    let fin = pass(blocks, k, &shift(&f), true);
+    let fin = cur;
     let gram = full_gram(&fin.gram, k);
     // W_nk = p_nk / N_k, so G = Wᵀ W = N⁻¹ (Σ p pᵀ) N⁻¹.
     let gmat = DMatrix::from_fn(k, k, |a, b| gram[a * k + b] / (counts[a] * counts[b]));
     let covariance = covariance(&gmat, &counts);
-    let overlap: Vec<f64> = (0..k * k).map(|i| gmat[(i / k, i % k)] * counts[i % k]).collect();
+    let overlap: Vec<f64> = (0..k * k)
+        .map(|i| gmat[(i / k, i % k)] * counts[i % k])
+        .collect();
     Ok(MbarSolution {
         f,
         covariance,
@@ -268,7 +367,10 @@ fn full_gram(upper: &[f64], k: usize) -> Vec<f64> {
     g
 }
 
-fn reduced_hessian(p: &Pass, k: usize) -> Result<nalgebra::Cholesky<f64, nalgebra::Dyn>, EstimateError> {
+fn reduced_hessian(
+    p: &Pass,
+    k: usize,
+) -> Result<nalgebra::Cholesky<f64, nalgebra::Dyn>, EstimateError> {
     let gram = full_gram(&p.gram, k);
     let h = DMatrix::from_fn(k - 1, k - 1, |a, b| {
         let (a, b) = (a + 1, b + 1);
@@ -297,7 +399,12 @@ fn covariance(g: &DMatrix<f64>, counts: &[f64]) -> Vec<f64> {
     let me = SymmetricEigen::new(m);
     let biggest = me.eigenvalues.iter().fold(0.0f64, |x, l| x.max(l.abs()));
     let cut = biggest * 1e-10;
-    let inv_diag = DVector::from_iterator(k, me.eigenvalues.iter().map(|&l| if l.abs() > cut { 1.0 / l } else { 0.0 }));
+    let inv_diag = DVector::from_iterator(
+        k,
+        me.eigenvalues
+            .iter()
+            .map(|&l| if l.abs() > cut { 1.0 / l } else { 0.0 }),
+    );
     let pinv = &me.eigenvectors * DMatrix::from_diagonal(&inv_diag) * me.eigenvectors.transpose();
     let theta = &v * &s * pinv * &s * v.transpose();
     (0..k * k).map(|i| theta[(i / k, i % k)]).collect()

@@ -16,5 +16,6 @@ pub use error::EstimateError;
 pub use leg::{dudl_series, energy_series, estimate_leg};
 pub use options::{AnalysisOptions, Equilibration, EstimateOptions, Method, Subsample};
 pub use result::{
-    Convergence, ConvergencePoint, DeltaG, LegEstimate, MbarDetails, PairEstimate, TiPoint, WindowDiagnostics,
+    Convergence, ConvergencePoint, DeltaG, LegEstimate, MbarDetails, PairEstimate, TiPoint,
+    WindowDiagnostics,
 };

@@ -203,14 +203,15 @@ fn parse_line(
                     Slot::Dudl(c) => drow[c] = v * spec.scale,
                     Slot::Skip => unreachable!(),
                 }
-                while p < n && line[p] == b' ' {
-                    p += 1;
-                }
-                let ok_end = p == n
-                    || match spec.delim {
-                        Delim::Byte(d) => line[p] == d,
-                        Delim::Whitespace => is_space(line[p]),
-                    };
+                let ok_end = match spec.delim {
+                    Delim::Byte(d) => {
+                        while p < n && line[p] == b' ' {
+                            p += 1;
+                        }
+                        p == n || line[p] == d
+                    }
+                    Delim::Whitespace => p == n || is_space(line[p]),
+                };
                 if !ok_end {
                     return Err(value_error(
                         path,

@@ -127,3 +127,21 @@ pub fn bar(wf: &[f64], wr: &[f64]) -> Result<(f64, f64), EstimateError> {
     }
     Ok((x, var.max(0.0).sqrt()))
 }
+
+/// Each sample's first-order influence on the BAR estimate `df` of one pair (the
+/// delta method applied to Bennett's equation): ΔF̂ − ΔF ≈ Σ_F ψ_F + Σ_R ψ_R with
+/// ψ_F = (f_F − ⟨f_F⟩)/D, ψ_R = −(f_R − ⟨f_R⟩)/D and D = Σ f(1 − f) over all samples.
+/// Adjacent pairs share a window; the covariance of their estimates is the
+/// covariance of these influences over that window's samples.
+pub fn bar_influence(wf: &[f64], wr: &[f64], df: f64) -> (Vec<f64>, Vec<f64>) {
+    let m = (wf.len() as f64 / wr.len() as f64).ln();
+    let ff: Vec<f64> = wf.iter().map(|&w| fermi(m + w - df)).collect();
+    let fr: Vec<f64> = wr.iter().map(|&w| fermi(-m + w + df)).collect();
+    let d: f64 = ff.iter().chain(&fr).map(|p| p * (1.0 - p)).sum();
+    let mf = ff.iter().sum::<f64>() / ff.len() as f64;
+    let mr = fr.iter().sum::<f64>() / fr.len() as f64;
+    (
+        ff.iter().map(|p| (p - mf) / d).collect(),
+        fr.iter().map(|p| -(p - mr) / d).collect(),
+    )
+}

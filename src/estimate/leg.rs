@@ -1,8 +1,10 @@
 //! One leg from its windows: equilibration and decorrelation per window, every
 //! estimator asked for, overlap, convergence and warnings.
 
-use super::bar::bar;
-use super::correlation::{at_start, detect_equilibration, subsample, Equilibrated};
+use super::bar::{bar, bar_influence};
+use super::correlation::{
+    at_start, detect_equilibration, statistical_inefficiency, subsample, Equilibrated,
+};
 use super::error::EstimateError;
 use super::exp::exp_average;
 use super::mbar::{solve, MbarBlock, MbarSettings, MbarSolution};
@@ -51,7 +53,7 @@ fn select(
     series: &[f64],
     opts: &EstimateOptions,
     label: &str,
-) -> Result<(Equilibrated, Vec<usize>), EstimateError> {
+) -> Result<(Equilibrated, Vec<usize>, f64), EstimateError> {
     let n = series.len();
     let eq = match opts.equilibration {
         Equilibration::Auto => detect_equilibration(series),
@@ -70,7 +72,12 @@ fn select(
         Subsample::Auto => subsample(eq.start, n, eq.inefficiency),
         Subsample::None => (eq.start..n).collect(),
     };
-    Ok((eq, rows))
+    // What correlation is left in the frames used (all of it without subsampling;
+    // φ^g between kept frames of an AR(1)-like series with it): every σ is scaled by
+    // it, so error bars stay honest either way.
+    let kept: Vec<f64> = rows.iter().map(|&r| series[r]).collect();
+    let residual = statistical_inefficiency(&kept);
+    Ok((eq, rows, residual))
 }
 
 fn label(w: &WindowSamples) -> String {
@@ -103,12 +110,12 @@ pub fn estimate_leg(
     }
     let want_ti = methods.iter().any(|m| m.uses_dudl());
 
-    let energy: Vec<(Equilibrated, Vec<usize>)> = leg
+    let energy: Vec<(Equilibrated, Vec<usize>, f64)> = leg
         .windows
         .par_iter()
         .map(|w| select(&energy_series(w), opts, &label(w)))
         .collect::<Result<_, _>>()?;
-    let ti_sel: Option<Vec<(Equilibrated, Vec<usize>)>> = if want_ti {
+    let ti_sel: Option<Vec<(Equilibrated, Vec<usize>, f64)>> = if want_ti {
         Some(
             leg.windows
                 .par_iter()
@@ -122,9 +129,8 @@ pub fn estimate_leg(
     let ti_used: Option<Vec<&[usize]>> = ti_sel
         .as_ref()
         .map(|s| s.iter().map(|e| e.1.as_slice()).collect());
-    let ti_g: Option<Vec<f64>> = ti_sel
-        .as_ref()
-        .map(|s| s.iter().map(|e| e.0.inefficiency).collect());
+    let ti_g: Option<Vec<f64>> = ti_sel.as_ref().map(|s| s.iter().map(|e| e.2).collect());
+    let resid: Vec<f64> = energy.iter().map(|e| e.2).collect();
 
     let windows: Vec<WindowDiagnostics> = leg
         .windows
@@ -170,7 +176,7 @@ pub fn estimate_leg(
 
     let want_bar = methods.contains(&Method::Bar) || methods.contains(&Method::Mbar);
     let bar_pairs = if want_bar {
-        Some(bar_pairs(leg, &used)?)
+        Some(bar_pairs(leg, &used, &resid)?)
     } else {
         None
     };
@@ -182,7 +188,6 @@ pub fn estimate_leg(
                     ti_used.as_ref().expect("selected"),
                     ti_g.as_ref().expect("selected"),
                     *m == Method::TiSpline,
-                    opts.subsample,
                 );
                 if ti_points.is_empty() {
                     ti_points = pts;
@@ -190,7 +195,7 @@ pub fn estimate_leg(
                 d
             }
             Method::ExpForward | Method::ExpReverse => {
-                let per = exp_pairs(leg, &used, *m == Method::ExpForward)?;
+                let per = exp_pairs(leg, &used, &resid, *m == Method::ExpForward)?;
                 for (p, d) in pairs.iter_mut().zip(&per) {
                     p.estimates.insert(*m, *d);
                 }
@@ -201,7 +206,7 @@ pub fn estimate_leg(
                 for (p, d) in pairs.iter_mut().zip(per) {
                     p.estimates.insert(Method::Bar, *d);
                 }
-                sum(per)
+                bar_total(leg, &used, &resid, per)
             }
             Method::Mbar => continue,
         };
@@ -217,7 +222,7 @@ pub fn estimate_leg(
         }
         f
     });
-    let sol = mbar(leg, &used, init)?;
+    let sol = mbar(leg, &used, &resid, init)?;
     let solve_seconds = t0.elapsed().as_secs_f64();
     let (d, s) = sol.difference(0, k - 1);
     if methods.contains(&Method::Mbar) {
@@ -272,10 +277,10 @@ pub fn estimate_leg(
             leg,
             method,
             &used,
+            &resid,
             ti_used.as_deref(),
             ti_g.as_deref(),
             &sol,
-            opts.subsample,
         )?)
     } else {
         None
@@ -334,46 +339,92 @@ fn pair_err(i: usize, e: EstimateError) -> EstimateError {
     }
 }
 
+/// EXP per adjacent pair; each σ² scaled by the residual inefficiency `g` of the
+/// window that supplied the samples.
 fn exp_pairs(
     leg: &LegSamples,
     used: &[&[usize]],
+    g: &[f64],
     forward: bool,
 ) -> Result<Vec<DeltaG>, EstimateError> {
     (0..leg.n_states() - 1)
         .map(|i| {
-            let r = if forward {
-                exp_average(&works(&leg.windows[i], used[i], i + 1)).map(|(d, s)| (d, s))
+            let (src, to, sign) = if forward {
+                (i, i + 1, 1.0)
             } else {
-                exp_average(&works(&leg.windows[i + 1], used[i + 1], i)).map(|(d, s)| (-d, s))
+                (i + 1, i, -1.0)
             };
-            r.map(|(d, s)| DeltaG {
-                delta_g: d,
-                sigma: s,
-            })
-            .map_err(|e| pair_err(i, e))
-        })
-        .collect()
-}
-
-fn bar_pairs(leg: &LegSamples, used: &[&[usize]]) -> Result<Vec<DeltaG>, EstimateError> {
-    (0..leg.n_states() - 1)
-        .into_par_iter()
-        .map(|i| {
-            let wf = works(&leg.windows[i], used[i], i + 1);
-            let wr = works(&leg.windows[i + 1], used[i + 1], i);
-            bar(&wf, &wr)
+            exp_average(&works(&leg.windows[src], used[src], to))
                 .map(|(d, s)| DeltaG {
-                    delta_g: d,
-                    sigma: s,
+                    delta_g: sign * d,
+                    sigma: s * g[src].sqrt(),
                 })
                 .map_err(|e| pair_err(i, e))
         })
         .collect()
 }
 
+/// BAR per adjacent pair; σ² scaled by the two windows' residual inefficiencies,
+/// weighted by their sample counts.
+fn bar_pairs(leg: &LegSamples, used: &[&[usize]], g: &[f64]) -> Result<Vec<DeltaG>, EstimateError> {
+    (0..leg.n_states() - 1)
+        .into_par_iter()
+        .map(|i| {
+            let wf = works(&leg.windows[i], used[i], i + 1);
+            let wr = works(&leg.windows[i + 1], used[i + 1], i);
+            let (a, b) = (wf.len() as f64, wr.len() as f64);
+            let scale = ((a * g[i] + b * g[i + 1]) / (a + b)).sqrt();
+            bar(&wf, &wr)
+                .map(|(d, s)| DeltaG {
+                    delta_g: d,
+                    sigma: s * scale,
+                })
+                .map_err(|e| pair_err(i, e))
+        })
+        .collect()
+}
+
+/// The BAR sum over adjacent pairs. Its variance adds, to each pair's asymptotic
+/// variance, twice the covariance of neighbouring pairs, which share a window: from
+/// window i, Cov = g_i n_i · cov(ψ_R of pair (i−1, i), ψ_F of pair (i, i+1)) with ψ
+/// the samples' influences ([`bar_influence`]). Without it the sum's σ is too small
+/// whenever a window's works towards its two neighbours are correlated.
+fn bar_total(leg: &LegSamples, used: &[&[usize]], g: &[f64], per: &[DeltaG]) -> DeltaG {
+    let k = leg.n_states();
+    let infl: Vec<(Vec<f64>, Vec<f64>)> = (0..k - 1)
+        .into_par_iter()
+        .map(|i| {
+            let wf = works(&leg.windows[i], used[i], i + 1);
+            let wr = works(&leg.windows[i + 1], used[i + 1], i);
+            bar_influence(&wf, &wr, per[i].delta_g)
+        })
+        .collect();
+    let mut var: f64 = per.iter().map(|d| d.sigma * d.sigma).sum();
+    for i in 1..k - 1 {
+        let (a, b) = (&infl[i - 1].1, &infl[i].0);
+        let n = a.len() as f64;
+        let (ma, mb) = (a.iter().sum::<f64>() / n, b.iter().sum::<f64>() / n);
+        let cov = a
+            .iter()
+            .zip(b)
+            .map(|(x, y)| (x - ma) * (y - mb))
+            .sum::<f64>()
+            / (n - 1.0).max(1.0);
+        var += 2.0 * g[i] * n * cov;
+    }
+    DeltaG {
+        delta_g: per.iter().map(|d| d.delta_g).sum(),
+        sigma: var.max(0.0).sqrt(),
+    }
+}
+
+/// MBAR on the used frames. Θ is scaled by the sample-weighted mean residual
+/// inefficiency (exact when every window has the same one, an approximation
+/// otherwise).
 fn mbar(
     leg: &LegSamples,
     used: &[&[usize]],
+    g: &[f64],
     initial: Option<Vec<f64>>,
 ) -> Result<MbarSolution, EstimateError> {
     let blocks: Vec<MbarBlock> = leg
@@ -386,23 +437,28 @@ fn mbar(
             rows,
         })
         .collect();
-    solve(
+    let mut sol = solve(
         &blocks,
         leg.n_states(),
         &MbarSettings {
             initial,
             ..Default::default()
         },
-    )
+    )?;
+    let n: f64 = used.iter().map(|r| r.len() as f64).sum();
+    let gbar = used
+        .iter()
+        .zip(g)
+        .map(|(r, g)| r.len() as f64 * g)
+        .sum::<f64>()
+        / n;
+    sol.covariance.iter_mut().for_each(|c| *c *= gbar);
+    Ok(sol)
 }
 
-fn ti(
-    leg: &LegSamples,
-    used: &[&[usize]],
-    g: &[f64],
-    spline: bool,
-    sub: Subsample,
-) -> (DeltaG, Vec<TiPoint>) {
+/// TI from the used frames: each window's SEM is sqrt(g s²/n) with g the residual
+/// inefficiency of its dU/dλ series.
+fn ti(leg: &LegSamples, used: &[&[usize]], g: &[f64], spline: bool) -> (DeltaG, Vec<TiPoint>) {
     let mut total = 0.0;
     let mut var = 0.0;
     let mut points = Vec::new();
@@ -419,9 +475,7 @@ fn ti(
                 .map(|&r| (w.dudl_at(r, c) - m).powi(2))
                 .sum::<f64>()
                 / (n - 1.0).max(1.0);
-            // Kept frames that were not subsampled are correlated: scale by g.
-            let gi = if sub == Subsample::None { g[i] } else { 1.0 };
-            let s = (v * gi / n).sqrt();
+            let s = (v * g[i] / n).sqrt();
             mean.push(m);
             sem.push(s);
             points.push(TiPoint {
@@ -432,8 +486,7 @@ fn ti(
                 sem: s,
             });
         }
-        let wts = path_weights(x, spline);
-        let (v, s) = integrate(&wts, &mean, &sem);
+        let (v, s) = integrate(&path_weights(x, spline), &mean, &sem);
         total += v;
         var += s * s;
     }
@@ -446,34 +499,37 @@ fn ti(
     )
 }
 
+struct Subset<'a> {
+    used: &'a [&'a [usize]],
+    g: &'a [f64],
+    ti_used: Option<&'a [&'a [usize]]>,
+    ti_g: Option<&'a [f64]>,
+}
+
 fn method_on(
     leg: &LegSamples,
     method: Method,
-    used: &[&[usize]],
-    ti_used: Option<&[&[usize]]>,
-    ti_g: Option<&[f64]>,
+    s: &Subset,
     warm: &[f64],
-    sub: Subsample,
 ) -> Result<DeltaG, EstimateError> {
     let k = leg.n_states();
     Ok(match method {
         Method::Ti | Method::TiSpline => {
             ti(
                 leg,
-                ti_used.expect("TI selected"),
-                ti_g.expect("TI selected"),
+                s.ti_used.expect("TI selected"),
+                s.ti_g.expect("TI selected"),
                 method == Method::TiSpline,
-                sub,
             )
             .0
         }
         Method::ExpForward | Method::ExpReverse => {
-            sum(&exp_pairs(leg, used, method == Method::ExpForward)?)
+            sum(&exp_pairs(leg, s.used, s.g, method == Method::ExpForward)?)
         }
-        Method::Bar => sum(&bar_pairs(leg, used)?),
+        Method::Bar => bar_total(leg, s.used, s.g, &bar_pairs(leg, s.used, s.g)?),
         Method::Mbar => {
-            let s = mbar(leg, used, Some(warm.to_vec()))?;
-            let (d, e) = s.difference(0, k - 1);
+            let sol = mbar(leg, s.used, s.g, Some(warm.to_vec()))?;
+            let (d, e) = sol.difference(0, k - 1);
             DeltaG {
                 delta_g: d,
                 sigma: e,
@@ -482,15 +538,17 @@ fn method_on(
     })
 }
 
-/// ΔG from the first and the last 10 %, 20 %, … 100 % of each window's used frames.
+/// ΔG from the first and the last 10 %, 20 %, … 100 % of each window's used frames
+/// (residual inefficiencies taken from the whole).
+#[allow(clippy::too_many_arguments)]
 fn convergence(
     leg: &LegSamples,
     method: Method,
     used: &[&[usize]],
+    g: &[f64],
     ti_used: Option<&[&[usize]]>,
     ti_g: Option<&[f64]>,
     sol: &MbarSolution,
-    sub: Subsample,
 ) -> Result<Convergence, EstimateError> {
     let share = |rows: &[usize], frac: f64, head: bool| -> Vec<usize> {
         let n = ((rows.len() as f64 * frac).ceil() as usize).clamp(2.min(rows.len()), rows.len());
@@ -514,7 +572,13 @@ fn convergence(
                 ti_used.map(|tu| tu.iter().map(|r| share(r, frac, head)).collect());
             let tr: Option<Vec<&[usize]>> =
                 t.as_ref().map(|t| t.iter().map(|v| v.as_slice()).collect());
-            pair[slot] = method_on(leg, method, &ur, tr.as_deref(), ti_g, &sol.f, sub)?;
+            let subset = Subset {
+                used: &ur,
+                g,
+                ti_used: tr.as_deref(),
+                ti_g,
+            };
+            pair[slot] = method_on(leg, method, &subset, &sol.f)?;
         }
         points.push(ConvergencePoint {
             fraction: frac,

@@ -136,7 +136,7 @@ fn leg_is_sorted_and_checked_for_consistency() {
         "{e}"
     );
 
-    let e = read_leg(&[a.clone()], &ReaderConfig::default())
+    let e = read_leg(std::slice::from_ref(&a), &ReaderConfig::default())
         .unwrap_err()
         .to_string();
     assert!(e.contains("state(s) [0]"), "{e}");

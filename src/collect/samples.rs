@@ -50,11 +50,7 @@ impl WindowSamples {
         dudl: Vec<f64>,
     ) -> WindowSamples {
         let n_states = lambdas.len();
-        let frames = if n_states == 0 {
-            0
-        } else {
-            reduced.len() / n_states
-        };
+        let frames = reduced.len().checked_div(n_states).unwrap_or(0);
         assert_eq!(
             frames * n_states,
             reduced.len(),

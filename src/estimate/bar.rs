@@ -108,7 +108,7 @@ pub fn bar(wf: &[f64], wr: &[f64]) -> Result<(f64, f64), EstimateError> {
     }
     let mean = acc / n;
     let mut var = (1.0 / mean - (n / nf + n / nr)) / n;
-    if !(var > 0.0) || !var.is_finite() {
+    if var.is_nan() || var <= 0.0 || var.is_infinite() {
         // Bennett's original form, which stays positive where the asymptotic one
         // fails (almost no overlap).
         let (mut f1, mut f2, mut r1, mut r2) = (0.0, 0.0, 0.0, 0.0);

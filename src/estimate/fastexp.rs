@@ -3,9 +3,9 @@
 
 const LOG2E: f64 = std::f64::consts::LOG2_E;
 // Cody–Waite split of ln 2 (the high part has trailing zero bits, so n·LN2_HI is exact).
-const LN2_HI: f64 = 6.931_471_803_691_238_164_90e-1;
-const LN2_LO: f64 = 1.908_214_929_270_587_700_02e-10;
-// 1.5·2^52: adding it rounds to an integer held in the low mantissa bits.
+const LN2_HI: f64 = 0.693_147_180_369_123_8; // bits 0x3fe62e42fee00000
+const LN2_LO: f64 = 1.908_214_929_270_587_7e-10; // bits 0x3dea39ef35793c76
+                                                 // 1.5·2^52: adding it rounds to an integer held in the low mantissa bits.
 const SHIFT: f64 = 6_755_399_441_055_744.0;
 
 /// e^x for x ≤ 0, relative error below 1e-15; arguments below −708 give ~1e-308
@@ -40,7 +40,7 @@ mod tests {
 
     #[test]
     fn matches_std_exp() {
-        let mut x = 0.0;
+        let mut x: f64 = 0.0;
         while x > -745.0 {
             let want = x.exp();
             let got = exp_nonpos(x);

@@ -178,20 +178,9 @@ unsafe fn chunk_avx2(u: &[f64], rows: &[usize], k: usize, c: &[f64], acc: &mut A
     chunk_body(u, rows, k, c, acc, gram)
 }
 
-#[cfg(target_arch = "x86_64")]
-#[target_feature(enable = "avx512f")]
-unsafe fn chunk_avx512(u: &[f64], rows: &[usize], k: usize, c: &[f64], acc: &mut Acc, gram: bool) {
-    chunk_body(u, rows, k, c, acc, gram)
-}
-
 fn chunk(u: &[f64], rows: &[usize], k: usize, c: &[f64], acc: &mut Acc, gram: bool) {
     #[cfg(target_arch = "x86_64")]
     {
-        if std::arch::is_x86_feature_detected!("avx512f") {
-            // SAFETY: the CPU supports AVX-512F, checked just above.
-            unsafe { chunk_avx512(u, rows, k, c, acc, gram) };
-            return;
-        }
         if std::arch::is_x86_feature_detected!("avx2") {
             // SAFETY: the CPU supports AVX2, checked just above.
             unsafe { chunk_avx2(u, rows, k, c, acc, gram) };

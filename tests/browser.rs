@@ -78,7 +78,12 @@ fn report_loads_in_headless_chromium_without_errors_and_is_not_blank() {
         "<!DOCTYPE html><html><body><p>control</p><script>console.error('deliberate control error')</script></body></html>",
     )
     .unwrap();
-    let log = load(&chrome, &control, &dir.join("control.png"), &dir.join("profile-control"));
+    let log = load(
+        &chrome,
+        &control,
+        &dir.join("control.png"),
+        &dir.join("profile-control"),
+    );
     assert!(
         !console_errors(&log).is_empty(),
         "the console-error check did not see the control page's error; log was:\n{log}"
@@ -95,7 +100,10 @@ fn report_loads_in_headless_chromium_without_errors_and_is_not_blank() {
     // A blank page has zero variance; the report has dark text, coloured plots
     // and white space, so its luminance varies a lot.
     assert!(stats.variance > 200.0, "screenshot looks blank: {stats:?}");
-    assert!(stats.dark_fraction > 0.005, "hardly any dark pixels: {stats:?}");
+    assert!(
+        stats.dark_fraction > 0.005,
+        "hardly any dark pixels: {stats:?}"
+    );
     assert!(stats.distinct_colours > 50, "too few colours: {stats:?}");
 }
 
@@ -292,7 +300,11 @@ mod png {
     /// Raw DEFLATE (RFC 1951) decoder.
     pub fn inflate(data: &[u8]) -> Vec<u8> {
         let mut out = Vec::new();
-        let mut bits = Bits { data, pos: 0, bit: 0 };
+        let mut bits = Bits {
+            data,
+            pos: 0,
+            bit: 0,
+        };
         loop {
             let last = bits.get(1);
             match bits.get(2) {
@@ -318,8 +330,9 @@ mod png {
                         let hlit = bits.get(5) as usize + 257;
                         let hdist = bits.get(5) as usize + 1;
                         let hclen = bits.get(4) as usize + 4;
-                        const ORDER: [usize; 19] =
-                            [16, 17, 18, 0, 8, 7, 9, 6, 10, 5, 11, 4, 12, 3, 13, 2, 14, 1, 15];
+                        const ORDER: [usize; 19] = [
+                            16, 17, 18, 0, 8, 7, 9, 6, 10, 5, 11, 4, 12, 3, 13, 2, 14, 1, 15,
+                        ];
                         let mut cl = [0u8; 19];
                         for &o in ORDER.iter().take(hclen) {
                             cl[o] = bits.get(3) as u8;
@@ -335,11 +348,17 @@ mod png {
                                         lengths.push(p);
                                     }
                                 }
-                                17 => lengths.extend(std::iter::repeat_n(0, 3 + bits.get(3) as usize)),
-                                _ => lengths.extend(std::iter::repeat_n(0, 11 + bits.get(7) as usize)),
+                                17 => {
+                                    lengths.extend(std::iter::repeat_n(0, 3 + bits.get(3) as usize))
+                                }
+                                _ => lengths
+                                    .extend(std::iter::repeat_n(0, 11 + bits.get(7) as usize)),
                             }
                         }
-                        (Huffman::new(&lengths[..hlit]), Huffman::new(&lengths[hlit..]))
+                        (
+                            Huffman::new(&lengths[..hlit]),
+                            Huffman::new(&lengths[hlit..]),
+                        )
                     };
                     loop {
                         let sym = lit.decode(&mut bits) as usize;
@@ -351,7 +370,8 @@ mod png {
                             let i = sym - 257;
                             let len = LEN_BASE[i] as usize + bits.get(LEN_EXTRA[i] as u32) as usize;
                             let d = dist.decode(&mut bits) as usize;
-                            let back = DIST_BASE[d] as usize + bits.get(DIST_EXTRA[d] as u32) as usize;
+                            let back =
+                                DIST_BASE[d] as usize + bits.get(DIST_EXTRA[d] as u32) as usize;
                             let start = out.len() - back;
                             for k in 0..len {
                                 out.push(out[start + k]);

@@ -49,7 +49,14 @@ fn lambdas(k: usize) -> Vec<f64> {
         .collect()
 }
 
-fn leg(subject: &str, leg: &str, replica: u32, sign: f64, dg: f64, rng: &mut ChaCha8Rng) -> LegReplica {
+fn leg(
+    subject: &str,
+    leg: &str,
+    replica: u32,
+    sign: f64,
+    dg: f64,
+    rng: &mut ChaCha8Rng,
+) -> LegReplica {
     let k = 12;
     let sigma = 0.12 + 0.04 * rng.gen::<f64>();
     let windows: Vec<WindowSummary> = lambdas(k)
@@ -66,17 +73,24 @@ fn leg(subject: &str, leg: &str, replica: u32, sign: f64, dg: f64, rng: &mut Cha
         .collect();
     let mut overlap = vec![vec![0.0; k]; k];
     for (i, row) in overlap.iter_mut().enumerate() {
-        let raw: Vec<f64> = (0..k).map(|j| (-1.3 * (i as f64 - j as f64).abs()).exp()).collect();
+        let raw: Vec<f64> = (0..k)
+            .map(|j| (-1.3 * (i as f64 - j as f64).abs()).exp())
+            .collect();
         let s: f64 = raw.iter().sum();
         for (j, v) in raw.into_iter().enumerate() {
             row[j] = v / s;
         }
     }
-    let min_adj = (0..k - 1).map(|i| overlap[i][i + 1]).fold(f64::INFINITY, f64::min);
+    let min_adj = (0..k - 1)
+        .map(|i| overlap[i][i + 1])
+        .fold(f64::INFINITY, f64::min);
     let fractions: Vec<f64> = (1..=10).map(|i| i as f64 / 10.0).collect();
     let drift = 0.5 * (rng.gen::<f64>() - 0.5);
     let convergence = Convergence {
-        forward: fractions.iter().map(|f| dg + drift * (-4.0 * f).exp() / (-4.0f64).exp() * 0.02 + 0.4 * (1.0 - f)).collect(),
+        forward: fractions
+            .iter()
+            .map(|f| dg + drift * (-4.0 * f).exp() / (-4.0f64).exp() * 0.02 + 0.4 * (1.0 - f))
+            .collect(),
         forward_sigma: fractions.iter().map(|f| sigma / f.sqrt()).collect(),
         reverse: fractions.iter().map(|f| dg - 0.25 * (1.0 - f)).collect(),
         reverse_sigma: fractions.iter().map(|f| sigma / f.sqrt()).collect(),
@@ -119,8 +133,18 @@ pub fn info() -> CampaignInfo {
         temperature_k: 298.15,
         estimator: "mbar".into(),
         legs: vec![
-            LegSpec { name: "complex".into(), sign: 1.0, correction: 0.0, restraint: None },
-            LegSpec { name: "solvent".into(), sign: -1.0, correction: 0.0, restraint: None },
+            LegSpec {
+                name: "complex".into(),
+                sign: 1.0,
+                correction: 0.0,
+                restraint: None,
+            },
+            LegSpec {
+                name: "solvent".into(),
+                sign: -1.0,
+                correction: 0.0,
+                restraint: None,
+            },
         ],
         reference: None,
         seed: 7,

@@ -91,7 +91,11 @@ pub fn assemble(
             Ok(e) => edges.push(e),
             Err(CycleError::MissingLeg { subject, leg }) => warnings.push(format!(
                 "{subject}: leg '{leg}' has no finished replica yet, so this {} is left out",
-                if info.kind == CampaignKind::Relative { "edge" } else { "ligand" }
+                if info.kind == CampaignKind::Relative {
+                    "edge"
+                } else {
+                    "ligand"
+                }
             )),
             Err(e) => return Err(e.into()),
         }
@@ -140,7 +144,10 @@ pub fn assemble(
         let pairs: Vec<(String, f64)> = ligands.iter().map(|l| (l.ligand.clone(), l.dg)).collect();
         compare_all(&pairs, &edges, &measured, info.seed)
     });
-    if measured.iter().any(|m| m.kind == crate::network::MeasuredKind::Ic50) {
+    if measured
+        .iter()
+        .any(|m| m.kind == crate::network::MeasuredKind::Ic50)
+    {
         warnings.push(IC50_NOTE.to_string());
     }
     let low: Vec<String> = legs

@@ -15,6 +15,9 @@ pub const CAUTION_CLUSTER: &str = "Campaigns like this one occupy many cluster n
 
 /// Leg sections start open when there are at most this many leg replicas.
 const OPEN_LEGS: usize = 12;
+/// Above this many leg replicas, only the legs worth a look (estimator warnings,
+/// low overlap, a flagged edge) get plots, so the page stays a reasonable size.
+pub const LEG_PLOT_LIMIT: usize = 60;
 
 fn esc(s: &str) -> String {
     let mut o = String::with_capacity(s.len());
@@ -33,7 +36,8 @@ fn esc(s: &str) -> String {
 
 fn f2(v: f64) -> String {
     if v.is_finite() {
-        format!("{v:.2}")
+        // `+ 0.0` turns −0 (e.g. an empty sum) into 0 so it does not print as "-0.00".
+        format!("{:.2}", v + 0.0)
     } else {
         "–".into()
     }
@@ -47,7 +51,7 @@ const STYLE: &str = r#"
 :root { --ink:#1f2933; --muted:#66727f; --line:#dde1e5; --teal:#0f6e6a; --warn:#8a4b08; --bad:#b83227; --paper:#fbfaf7; }
 * { box-sizing: border-box; }
 body { margin:0; background:var(--paper); color:var(--ink); font:15px/1.5 system-ui, -apple-system, "Segoe UI", Roboto, sans-serif; }
-main { max-width:1180px; margin:0 auto; padding:24px 28px 60px; }
+main { max-width:1240px; margin:0 auto; padding:24px 28px 60px; }
 h1 { font-size:26px; margin:0 0 4px; letter-spacing:-0.01em; }
 h2 { font-size:19px; margin:36px 0 10px; padding-bottom:4px; border-bottom:2px solid var(--teal); }
 h3 { font-size:16px; margin:0; display:inline; }
@@ -56,9 +60,9 @@ h3 { font-size:16px; margin:0; display:inline; }
 .caution p { margin:4px 0; }
 .warnings li { color:var(--warn); }
 .row { display:flex; flex-wrap:wrap; gap:16px; align-items:flex-start; }
-figure { margin:0; background:#fff; border:1px solid var(--line); border-radius:6px; padding:6px; }
+figure { margin:0; background:#fff; border:1px solid var(--line); border-radius:6px; padding:4px; }
 figure svg { display:block; max-width:100%; height:auto; }
-figcaption { color:var(--muted); font-size:13px; padding:4px 6px 2px; max-width:520px; }
+figcaption { color:var(--muted); font-size:13px; padding:4px 6px 2px; width:0; min-width:100%; }
 table { border-collapse:collapse; background:#fff; font-variant-numeric:tabular-nums; margin:6px 0 10px; }
 th, td { border-bottom:1px solid var(--line); padding:4px 10px; text-align:right; }
 th { background:#eef3f2; font-weight:600; }
@@ -68,6 +72,7 @@ td.l, th.l { text-align:left; }
 details { background:#fff; border:1px solid var(--line); border-radius:6px; margin:10px 0; padding:8px 12px; }
 summary { cursor:pointer; }
 .small { font-size:13px; color:var(--muted); }
+nav a { color:var(--teal); }
 footer { margin-top:40px; color:var(--muted); font-size:13px; }
 "#;
 
@@ -105,12 +110,22 @@ fn figure(out: &mut String, svg: &str, caption: &str) {
     );
 }
 
-fn leg_section(out: &mut String, r: &Results, l: &LegReplica, open: bool) -> Result<(), PlotError> {
+fn leg_section(
+    out: &mut String,
+    r: &Results,
+    l: &LegReplica,
+    open: bool,
+    with_plots: bool,
+) -> Result<(), PlotError> {
     let unit = r.unit.to_string();
     let overlap = l
         .min_adjacent_overlap
         .map(|o| {
-            let cls = if o < super::assemble::MIN_OVERLAP { "bad" } else { "ok" };
+            let cls = if o < super::assemble::MIN_OVERLAP {
+                "bad"
+            } else {
+                "ok"
+            };
             format!(" · min adjacent overlap <span class=\"{cls}\">{o:.3}</span>")
         })
         .unwrap_or_default();
@@ -128,7 +143,10 @@ fn leg_section(out: &mut String, r: &Results, l: &LegReplica, open: bool) -> Res
         if l.warnings.is_empty() {
             String::new()
         } else {
-            format!("<span class=\"flag\">{} warning(s)</span>", l.warnings.len())
+            format!(
+                "<span class=\"flag\">{} warning(s)</span>",
+                l.warnings.len()
+            )
         }
     );
     if !l.methods.is_empty() {
@@ -151,12 +169,20 @@ fn leg_section(out: &mut String, r: &Results, l: &LegReplica, open: bool) -> Res
         }
         out.push_str("</ul>\n");
     }
+    if !with_plots {
+        out.push_str("<p class=\"small\">Plots left out to keep the page small (many legs, nothing flagged here); the numbers are in results/summary.json.</p></details>\n");
+        return Ok(());
+    }
     out.push_str("<div class=\"row\">\n");
     if let Some(svg) = plots::overlap(l)? {
         figure(out, &svg, "Overlap between states (colour on a √ scale). Neighbouring states should overlap well above 0.03 (rule of thumb).");
     }
     if let Some(svg) = plots::dudl(l, &unit)? {
-        figure(out, &svg, "Mean dU/dλ per window with ±SEM; the shaded area is the trapezoid TI estimate.");
+        figure(
+            out,
+            &svg,
+            "Mean dU/dλ per window with ±SEM; the shaded area is the trapezoid TI estimate.",
+        );
     }
     if let Some(c) = &l.convergence {
         if let Some(svg) = plots::convergence(c, &unit)? {
@@ -191,6 +217,7 @@ pub fn render(r: &Results) -> Result<String, PlotError> {
             .map(|t| format!(" · assembled {}", esc(t)))
             .unwrap_or_default()
     );
+    o.push_str("<nav class=\"small\"><a href=\"#overview\">overview</a> · <a href=\"#ligands\">ligands</a> · <a href=\"#edges\">edges</a> · <a href=\"#cycles\">cycles</a> · <a href=\"#legs\">legs</a></nav>\n");
     let _ = writeln!(
         o,
         "<section class=\"caution\" id=\"cautions\"><strong>Cautions.</strong>\n<p>{}</p>\n<p>{}</p>\n<p>{}</p>\n</section>",
@@ -204,7 +231,7 @@ pub fn render(r: &Results) -> Result<String, PlotError> {
     );
     let leg_warnings: usize = r.legs.iter().map(|l| l.warnings.len()).sum();
     if !r.warnings.is_empty() || leg_warnings > 0 {
-        o.push_str("<h2>Warnings</h2>\n<ul class=\"warnings\">\n");
+        o.push_str("<h2 id=\"warnings\">Warnings</h2>\n<ul class=\"warnings\">\n");
         for w in &r.warnings {
             let _ = writeln!(o, "<li>{}</li>", esc(w));
         }
@@ -217,7 +244,7 @@ pub fn render(r: &Results) -> Result<String, PlotError> {
         o.push_str("</ul>\n");
     }
 
-    o.push_str("<h2>Overview</h2>\n<div class=\"row\">\n");
+    o.push_str("<h2 id=\"overview\">Overview</h2>\n<div class=\"row\">\n");
     if r.edges.iter().any(|e| e.ligand_b.is_some()) && !r.ligands.is_empty() {
         figure(&mut o, &plots::network(r)?, "Each line is an edge, coloured by how far its own ΔΔG is from the network's reconciled value, in units of its σ.");
     }
@@ -228,7 +255,7 @@ pub fn render(r: &Results) -> Result<String, PlotError> {
     o.push_str("</div>\n");
 
     if let Some(s) = &r.statistics {
-        let _ = writeln!(o, "<h2>Against experiment</h2>\n<p class=\"small\">Bootstrap 95% intervals in brackets ({} resamples, seed {}). Errors in {unit}.</p>", s.ligands.resamples, s.ligands.seed);
+        let _ = writeln!(o, "<h2 id=\"experiment\">Against experiment</h2>\n<p class=\"small\">Bootstrap 95% intervals in brackets ({} resamples, seed {}). Errors in {unit}.</p>", s.ligands.resamples, s.ligands.seed);
         o.push_str("<table><tr><th class=\"l\">over</th><th>n</th><th>RMSE</th><th>MUE</th><th>Pearson R</th><th>R²</th><th>Kendall τ</th></tr>\n");
         stats_row(&mut o, "ligands (ΔG)", &s.ligands);
         stats_row(&mut o, "edges (ΔΔG)", &s.edges);
@@ -237,12 +264,20 @@ pub fn render(r: &Results) -> Result<String, PlotError> {
 
     let offset = match r.offsets.as_slice() {
         [] => String::new(),
-        [Offset::Measured { count }] => format!("The offset is fixed by the mean of {count} measured values."),
+        [Offset::Measured { count }] => {
+            format!("The offset is fixed by the mean of {count} measured values.")
+        }
         [Offset::Reference { ligand }] => format!("ΔG are relative to {} (set to 0).", esc(ligand)),
         [Offset::SeriesMean] => "ΔG are relative to the series mean (set to 0).".into(),
-        many => format!("The network has {} disconnected parts; compare ΔG only within a part.", many.len()),
+        many => format!(
+            "The network has {} disconnected parts; compare ΔG only within a part.",
+            many.len()
+        ),
     };
-    let _ = writeln!(o, "<h2>Ligands</h2>\n<p class=\"small\">Most favourable first. {offset}</p>");
+    let _ = writeln!(
+        o,
+        "<h2 id=\"ligands\">Ligands</h2>\n<p class=\"small\">Most favourable first. {offset}</p>"
+    );
     o.push_str("<table><tr><th>rank</th><th class=\"l\">ligand</th><th>ΔG</th><th>σ</th><th>measured</th><th>predicted − measured</th></tr>\n");
     for (i, l) in r.ranked_ligands().iter().enumerate() {
         let _ = writeln!(
@@ -261,7 +296,7 @@ pub fn render(r: &Results) -> Result<String, PlotError> {
     let relative = r.edges.iter().any(|e| e.ligand_b.is_some());
     let _ = writeln!(
         o,
-        "<h2>{}</h2>\n<p class=\"small\">σ = √(σ<sub>replicas</sub>² + σ<sub>spread</sub>²): the replicas' own errors and the scatter between replicas, both shown.</p>",
+        "<h2 id=\"edges\">{}</h2>\n<p class=\"small\">σ = √(σ<sub>replicas</sub>² + σ<sub>spread</sub>²): the replicas' own errors and the scatter between replicas, both shown.</p>",
         if relative { "Edges" } else { "Cycles per ligand" }
     );
     o.push_str("<table><tr><th class=\"l\">subject</th><th>ΔΔG</th><th>σ</th><th>σ replicas</th><th>σ spread</th><th>replicas</th><th>corrections</th><th>network</th><th>residual</th><th class=\"l\">flags</th></tr>\n");
@@ -289,7 +324,7 @@ pub fn render(r: &Results) -> Result<String, PlotError> {
     o.push_str("</table>\n");
 
     if !r.cycles.is_empty() || !r.hysteresis.is_empty() {
-        o.push_str("<h2>Cycle closure and hysteresis</h2>\n<p class=\"small\">Around a closed cycle the ΔΔG sum to zero for exact free energies; an edge run both ways should give forward + reverse = 0.</p>\n");
+        o.push_str("<h2 id=\"cycles\">Cycle closure and hysteresis</h2>\n<p class=\"small\">Around a closed cycle the ΔΔG sum to zero for exact free energies; an edge run both ways should give forward + reverse = 0.</p>\n");
         o.push_str("<table><tr><th class=\"l\">cycle</th><th>sum</th><th>σ</th><th class=\"l\">within 2σ</th></tr>\n");
         for c in &r.cycles {
             let mut path = c.ligands.clone();
@@ -300,7 +335,11 @@ pub fn render(r: &Results) -> Result<String, PlotError> {
                 esc(&path.join(" → ")),
                 f2(c.closure),
                 f2(c.sigma),
-                if c.flagged { "<span class=\"bad\">no</span>" } else { "<span class=\"ok\">yes</span>" }
+                if c.flagged {
+                    "<span class=\"bad\">no</span>"
+                } else {
+                    "<span class=\"ok\">yes</span>"
+                }
             );
         }
         for h in &r.hysteresis {
@@ -318,7 +357,7 @@ pub fn render(r: &Results) -> Result<String, PlotError> {
     }
 
     if !r.missing.is_empty() {
-        o.push_str("<h2>Not finished</h2>\n<table><tr><th class=\"l\">leg replica</th><th>windows done</th><th class=\"l\">note</th></tr>\n");
+        o.push_str("<h2 id=\"missing\">Not finished</h2>\n<table><tr><th class=\"l\">leg replica</th><th>windows done</th><th class=\"l\">note</th></tr>\n");
         for m in &r.missing {
             let _ = writeln!(
                 o,
@@ -335,10 +374,17 @@ pub fn render(r: &Results) -> Result<String, PlotError> {
     }
 
     if !r.legs.is_empty() {
-        o.push_str("<h2>Legs</h2>\n");
-        let open = r.legs.len() <= OPEN_LEGS;
-        for l in &r.legs {
-            leg_section(&mut o, r, l, open)?;
+        o.push_str("<h2 id=\"legs\">Legs</h2>\n");
+        let many = r.legs.len() > LEG_PLOT_LIMIT;
+        for (i, l) in r.legs.iter().enumerate() {
+            let open = i == 0 || r.legs.len() <= OPEN_LEGS;
+            let worth = !l.warnings.is_empty()
+                || l.min_adjacent_overlap
+                    .is_some_and(|o| o < super::assemble::MIN_OVERLAP)
+                || r.edges
+                    .iter()
+                    .any(|e| e.subject == l.subject && !e.flags.is_empty());
+            leg_section(&mut o, r, l, open, i == 0 || !many || worth)?;
         }
     }
     let _ = writeln!(

@@ -20,6 +20,9 @@ pub fn vec<'de, D: Deserializer<'de>>(d: D) -> Result<Vec<f64>, D::Error> {
 
 /// A matrix of numbers with `null` read as NaN.
 pub fn matrix<'de, D: Deserializer<'de>>(d: D) -> Result<Vec<Vec<f64>>, D::Error> {
-    Vec::<Vec<Option<f64>>>::deserialize(d)
-        .map(|m| m.into_iter().map(|r| r.into_iter().map(nan).collect()).collect())
+    Vec::<Vec<Option<f64>>>::deserialize(d).map(|m| {
+        m.into_iter()
+            .map(|r| r.into_iter().map(nan).collect())
+            .collect()
+    })
 }

@@ -68,7 +68,11 @@ fn range(values: impl IntoIterator<Item = f64>) -> (f64, f64) {
     (lo - pad, hi + pad)
 }
 
-type Chart<'a, 'b> = ChartContext<'a, SVGBackend<'b>, Cartesian2d<plotters::coord::types::RangedCoordf64, plotters::coord::types::RangedCoordf64>>;
+type Chart<'a, 'b> = ChartContext<
+    'a,
+    SVGBackend<'b>,
+    Cartesian2d<plotters::coord::types::RangedCoordf64, plotters::coord::types::RangedCoordf64>,
+>;
 
 /// A vertical error bar from `lo` to `hi` at `x` with caps `cap` pixels wide each side.
 fn error_bar(chart: &mut Chart, x: f64, lo: f64, hi: f64, cap: i32) -> DrawResult {
@@ -76,7 +80,10 @@ fn error_bar(chart: &mut Chart, x: f64, lo: f64, hi: f64, cap: i32) -> DrawResul
         return Ok(());
     }
     let style = INK.stroke_width(1);
-    chart.draw_series(std::iter::once(PathElement::new(vec![(x, lo), (x, hi)], style)))?;
+    chart.draw_series(std::iter::once(PathElement::new(
+        vec![(x, lo), (x, hi)],
+        style,
+    )))?;
     for y in [lo, hi] {
         chart.draw_series(std::iter::once(
             EmptyElement::at((x, y)) + PathElement::new(vec![(-cap, 0), (cap, 0)], style),
@@ -99,11 +106,15 @@ pub fn z_colour(z: f64) -> RGBColor {
 /// The network drawn on a circle, edges coloured by |residual|/σ (or, before the
 /// network is solved, by σ relative to the largest σ).
 pub fn network(r: &Results) -> Result<String, PlotError> {
-    let (w, h) = (640u32, 560u32);
+    let (w, h) = (540u32, 500u32);
     render("network", (w, h), |root| {
         let names: Vec<&str> = r.ligands.iter().map(|l| l.ligand.as_str()).collect();
         let n = names.len().max(1) as f64;
-        let (cx, cy, rad) = (w as f64 / 2.0, h as f64 / 2.0 + 6.0, (h as f64 / 2.0) - 80.0);
+        let (cx, cy, rad) = (
+            w as f64 / 2.0,
+            h as f64 / 2.0 + 6.0,
+            (h as f64 / 2.0) - 80.0,
+        );
         let pos = |name: &str| -> Option<(i32, i32)> {
             let i = names.iter().position(|x| *x == name)? as f64;
             let a = 2.0 * PI * i / n - PI / 2.0;
@@ -115,9 +126,27 @@ pub fn network(r: &Results) -> Result<String, PlotError> {
             (FONT, 16).into_font().color(&INK),
         ))?;
         let max_sigma = r.edges.iter().map(|e| e.sigma).fold(0.0, f64::max);
+        let mut drawn: Vec<(String, String)> = Vec::new();
         for e in &r.edges {
-            let Some(b) = e.ligand_b.as_deref() else { continue };
-            let (Some(p), Some(q)) = (pos(&e.ligand_a), pos(b)) else { continue };
+            let Some(b) = e.ligand_b.as_deref() else {
+                continue;
+            };
+            let (Some(p), Some(q)) = (pos(&e.ligand_a), pos(b)) else {
+                continue;
+            };
+            // Edges run more than once (e.g. both directions) are drawn side by side.
+            let key = if e.ligand_a.as_str() < b {
+                (e.ligand_a.clone(), b.to_string())
+            } else {
+                (b.to_string(), e.ligand_a.clone())
+            };
+            let repeat = drawn.iter().filter(|k| **k == key).count() as f64;
+            drawn.push(key);
+            let shift = if repeat == 0.0 { 0.0 } else { 6.0 * repeat };
+            let (dx, dy) = ((q.0 - p.0) as f64, (q.1 - p.1) as f64);
+            let norm = dx.hypot(dy).max(1.0);
+            let (ox, oy) = ((-dy / norm * shift) as i32, (dx / norm * shift) as i32);
+            let (p, q) = ((p.0 + ox, p.1 + oy), (q.0 + ox, q.1 + oy));
             let z = match e.residual {
                 Some(x) if e.sigma > 0.0 => (x / e.sigma).abs(),
                 _ if max_sigma > 0.0 => 2.5 * e.sigma / max_sigma,
@@ -135,7 +164,7 @@ pub fn network(r: &Results) -> Result<String, PlotError> {
             root.draw(&Circle::new((x, y), 9, INK.stroke_width(2)))?;
             let a = 2.0 * PI * i as f64 / n - PI / 2.0;
             let (lx, ly) = (x as f64 + 22.0 * a.cos(), y as f64 + 22.0 * a.sin());
-            let est = 0.55 * 13.0 * name.chars().count() as f64;
+            let est = 0.6 * 14.0 * name.chars().count() as f64;
             let lx = if a.cos() < -0.3 {
                 lx - est
             } else if a.cos() < 0.3 {
@@ -146,14 +175,17 @@ pub fn network(r: &Results) -> Result<String, PlotError> {
             root.draw(&Text::new(
                 name.to_string(),
                 (lx as i32, ly as i32 - 7),
-                (FONT, 13).into_font().color(&INK),
+                (FONT, 14).into_font().color(&INK),
             ))?;
         }
         let legend = [(GOOD, "≤ 1σ"), (FAIR, "1–2σ"), (BAD, "> 2σ")];
         for (k, (c, label)) in legend.iter().enumerate() {
             let x = 16 + 90 * k as i32;
             let y = h as i32 - 22;
-            root.draw(&PathElement::new(vec![(x, y), (x + 28, y)], c.stroke_width(4)))?;
+            root.draw(&PathElement::new(
+                vec![(x, y), (x + 28, y)],
+                c.stroke_width(4),
+            ))?;
             root.draw(&Text::new(
                 label.to_string(),
                 (x + 34, y - 7),
@@ -162,7 +194,7 @@ pub fn network(r: &Results) -> Result<String, PlotError> {
         }
         root.draw(&Text::new(
             "thick: flagged edge",
-            (300, h as i32 - 29),
+            (290, h as i32 - 29),
             (FONT, 13).into_font().color(&MUTED),
         ))?;
         Ok(())
@@ -188,7 +220,7 @@ pub fn predicted_vs_measured(r: &Results) -> Result<Option<String>, PlotError> {
             .chain(pts.iter().map(|p| p.1 + one)),
     );
     let unit = r.unit.to_string();
-    render("predicted vs measured", (560, 520), |root| {
+    render("predicted vs measured", (500, 500), |root| {
         let mut chart = ChartBuilder::on(root)
             .caption(
                 "Predicted against measured ΔG",
@@ -200,8 +232,8 @@ pub fn predicted_vs_measured(r: &Results) -> Result<Option<String>, PlotError> {
             .build_cartesian_2d(lo..hi, lo..hi)?;
         chart
             .configure_mesh()
-            .light_line_style(RGBColor(0xee, 0xf0, 0xf2))
-            .bold_line_style(RGBColor(0xdd, 0xe1, 0xe5))
+            .light_line_style(TRANSPARENT)
+            .bold_line_style(RGBColor(0xe4, 0xe7, 0xeb))
             .axis_style(MUTED)
             .x_desc(format!("measured ΔG ({unit})"))
             .y_desc(format!("predicted ΔG ({unit})"))
@@ -224,17 +256,18 @@ pub fn predicted_vs_measured(r: &Results) -> Result<Option<String>, PlotError> {
         )?;
         if pts.len() <= 30 {
             chart.draw_series(pts.iter().map(|p| {
-                Text::new(
-                    p.0.to_string(),
-                    (p.1, p.2),
-                    (FONT, 11).into_font().color(&MUTED),
-                )
+                EmptyElement::at((p.1, p.2))
+                    + Text::new(
+                        p.0.to_string(),
+                        (7, -14),
+                        (FONT, 11).into_font().color(&MUTED),
+                    )
             }))?;
         }
         let note = "bands: ±1 and ±2 kcal/mol; bars: ±1σ";
         root.draw(&Text::new(
             note,
-            (72, 498),
+            (80, 44),
             (FONT, 12).into_font().color(&MUTED),
         ))?;
         Ok(())
@@ -257,39 +290,64 @@ pub fn overlap(leg: &LegReplica) -> Result<Option<String>, PlotError> {
     if k == 0 {
         return Ok(None);
     }
-    render("overlap", (420, 420), |root| {
+    let ki = k as i32;
+    render("overlap", (330, 340), |root| {
+        // Rows are drawn bottom-up, so row i of the matrix sits at y = k − 1 − i.
         let mut chart = ChartBuilder::on(root)
             .caption("Overlap matrix", (FONT, 15).into_font().color(&INK))
-            .margin(12)
-            .x_label_area_size(30)
-            .y_label_area_size(34)
-            .build_cartesian_2d(0.0..k as f64, k as f64..0.0)?;
+            .margin(10)
+            .x_label_area_size(34)
+            .y_label_area_size(30)
+            .build_cartesian_2d((0..ki - 1).into_segmented(), (0..ki - 1).into_segmented())?;
+        let every = (k / 12 + 1) as i32;
+        let label = move |v: &SegmentValue<i32>, flip: bool| match v {
+            SegmentValue::CenterOf(i) => {
+                let state = if flip { ki - 1 - i } else { *i };
+                if state % every == 0 {
+                    state.to_string()
+                } else {
+                    String::new()
+                }
+            }
+            _ => String::new(),
+        };
         chart
             .configure_mesh()
             .disable_mesh()
             .axis_style(MUTED)
-            .x_labels(k.min(12))
-            .y_labels(k.min(12))
-            .x_label_formatter(&|v| format!("{}", (*v - 0.5).round()))
-            .y_label_formatter(&|v| format!("{}", (*v - 0.5).round()))
-            .label_style((FONT, 11).into_font().color(&INK))
+            .x_labels(k)
+            .y_labels(k)
+            .x_label_formatter(&|v| label(v, false))
+            .y_label_formatter(&|v| label(v, true))
+            .label_style((FONT, 10).into_font().color(&INK))
             .x_desc("state")
             .draw()?;
+        let (pw, ph) = chart.plotting_area().dim_in_pixel();
+        let (cw, ch) = (pw as f64 / k as f64, ph as f64 / k as f64);
         for (i, row) in leg.overlap.iter().enumerate() {
+            let y = ki - 1 - i as i32;
             for (j, &v) in row.iter().enumerate() {
-                let (x, y) = (j as f64, i as f64);
+                let x = j as i32;
                 chart.draw_series(std::iter::once(Rectangle::new(
-                    [(x, y), (x + 1.0, y + 1.0)],
+                    [
+                        (SegmentValue::Exact(x), SegmentValue::Exact(y + 1)),
+                        (SegmentValue::Exact(x + 1), SegmentValue::Exact(y)),
+                    ],
                     heat(v).filled(),
                 )))?;
                 if k <= 14 && v >= 0.005 {
                     let colour = if v.sqrt() > 0.55 { PAPER } else { INK };
-                    let size = if k <= 8 { 12 } else { 9 };
-                    chart.draw_series(std::iter::once(Text::new(
-                        format!("{:.2}", v).trim_start_matches('0').to_string(),
-                        (x + 0.18, y + 0.35),
-                        (FONT, size).into_font().color(&colour),
-                    )))?;
+                    let size = if k <= 8 { 12.0 } else { 9.0 };
+                    let text = format!("{v:.2}").trim_start_matches('0').to_string();
+                    let w = 0.6 * size * text.len() as f64;
+                    chart.draw_series(std::iter::once(
+                        EmptyElement::at((SegmentValue::Exact(x), SegmentValue::Exact(y + 1)))
+                            + Text::new(
+                                text,
+                                (((cw - w) / 2.0) as i32, ((ch - 0.8 * size) / 2.0) as i32),
+                                (FONT, size).into_font().color(&colour),
+                            ),
+                    ))?;
                 }
             }
         }
@@ -316,13 +374,16 @@ pub fn dudl(leg: &LegReplica, unit: &str) -> Result<Option<String>, PlotError> {
     if ws.len() < 2 {
         return Ok(None);
     }
-    let (ylo, yhi) = range(
-        ws.iter()
-            .flat_map(|w| [w.dudl_mean - w.dudl_sem.abs(), w.dudl_mean + w.dudl_sem.abs(), 0.0]),
-    );
+    let (ylo, yhi) = range(ws.iter().flat_map(|w| {
+        [
+            w.dudl_mean - w.dudl_sem.abs(),
+            w.dudl_mean + w.dudl_sem.abs(),
+            0.0,
+        ]
+    }));
     let (xlo, xhi) = range(ws.iter().map(|w| w.lambda));
     let area = trapezoid(&leg.windows);
-    render("dU/dλ", (520, 360), |root| {
+    render("dU/dλ", (380, 330), |root| {
         let mut chart = ChartBuilder::on(root)
             .caption(
                 format!("⟨dU/dλ⟩ against λ — TI area {area:.2} {unit}"),
@@ -334,7 +395,7 @@ pub fn dudl(leg: &LegReplica, unit: &str) -> Result<Option<String>, PlotError> {
             .build_cartesian_2d(xlo..xhi, ylo..yhi)?;
         chart
             .configure_mesh()
-            .light_line_style(RGBColor(0xf0, 0xf2, 0xf4))
+            .light_line_style(TRANSPARENT)
             .bold_line_style(RGBColor(0xe2, 0xe5, 0xe9))
             .axis_style(MUTED)
             .x_desc("λ")
@@ -343,7 +404,10 @@ pub fn dudl(leg: &LegReplica, unit: &str) -> Result<Option<String>, PlotError> {
             .draw()?;
         let pts: Vec<(f64, f64)> = ws.iter().map(|w| (w.lambda, w.dudl_mean)).collect();
         chart.draw_series(AreaSeries::new(pts.clone(), 0.0, TEAL.mix(0.18)))?;
-        chart.draw_series(LineSeries::new([(xlo, 0.0), (xhi, 0.0)], MUTED.stroke_width(1)))?;
+        chart.draw_series(LineSeries::new(
+            [(xlo, 0.0), (xhi, 0.0)],
+            MUTED.stroke_width(1),
+        ))?;
         chart.draw_series(LineSeries::new(pts.clone(), TEAL.stroke_width(2)))?;
         for w in &ws {
             let s = w.dudl_sem.abs();
@@ -358,15 +422,17 @@ pub fn dudl(leg: &LegReplica, unit: &str) -> Result<Option<String>, PlotError> {
 /// ΔG from growing fractions of the data, forward (from the start) and reverse
 /// (from the end), with ±σ bands; they should meet well before the full data.
 pub fn convergence(c: &Convergence, unit: &str) -> Result<Option<String>, PlotError> {
-    let n = c
-        .fractions
-        .len()
-        .min(c.forward.len())
-        .min(c.reverse.len());
+    let n = c.fractions.len().min(c.forward.len()).min(c.reverse.len());
     if n == 0 {
         return Ok(None);
     }
-    let sig = |v: &[f64], i: usize| v.get(i).copied().filter(|s| s.is_finite()).unwrap_or(0.0).abs();
+    let sig = |v: &[f64], i: usize| {
+        v.get(i)
+            .copied()
+            .filter(|s| s.is_finite())
+            .unwrap_or(0.0)
+            .abs()
+    };
     let (ylo, yhi) = range((0..n).flat_map(|i| {
         [
             c.forward[i] - sig(&c.forward_sigma, i),
@@ -375,7 +441,7 @@ pub fn convergence(c: &Convergence, unit: &str) -> Result<Option<String>, PlotEr
             c.reverse[i] + sig(&c.reverse_sigma, i),
         ]
     }));
-    render("convergence", (520, 360), |root| {
+    render("convergence", (380, 330), |root| {
         let mut chart = ChartBuilder::on(root)
             .caption(
                 "Forward and reverse convergence",
@@ -387,7 +453,7 @@ pub fn convergence(c: &Convergence, unit: &str) -> Result<Option<String>, PlotEr
             .build_cartesian_2d(0.0..1.02, ylo..yhi)?;
         chart
             .configure_mesh()
-            .light_line_style(RGBColor(0xf0, 0xf2, 0xf4))
+            .light_line_style(TRANSPARENT)
             .bold_line_style(RGBColor(0xe2, 0xe5, 0xe9))
             .axis_style(MUTED)
             .x_desc("fraction of the data used")
@@ -395,11 +461,23 @@ pub fn convergence(c: &Convergence, unit: &str) -> Result<Option<String>, PlotEr
             .label_style((FONT, 11).into_font().color(&INK))
             .draw()?;
         for (values, sigmas, colour, label) in [
-            (&c.forward, &c.forward_sigma, TEAL, "forward (from the start)"),
-            (&c.reverse, &c.reverse_sigma, ORANGE, "reverse (from the end)"),
+            (
+                &c.forward,
+                &c.forward_sigma,
+                TEAL,
+                "forward (from the start)",
+            ),
+            (
+                &c.reverse,
+                &c.reverse_sigma,
+                ORANGE,
+                "reverse (from the end)",
+            ),
         ] {
             let upper = (0..n).map(|i| (c.fractions[i], values[i] + sig(sigmas, i)));
-            let lower = (0..n).rev().map(|i| (c.fractions[i], values[i] - sig(sigmas, i)));
+            let lower = (0..n)
+                .rev()
+                .map(|i| (c.fractions[i], values[i] - sig(sigmas, i)));
             chart.draw_series(std::iter::once(Polygon::new(
                 upper.chain(lower).collect::<Vec<_>>(),
                 colour.mix(0.15).filled(),
@@ -408,7 +486,9 @@ pub fn convergence(c: &Convergence, unit: &str) -> Result<Option<String>, PlotEr
             chart
                 .draw_series(LineSeries::new(line.clone(), colour.stroke_width(2)))?
                 .label(label)
-                .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 18, y)], colour.stroke_width(2)));
+                .legend(move |(x, y)| {
+                    PathElement::new(vec![(x, y), (x + 18, y)], colour.stroke_width(2))
+                });
             chart.draw_series(line.iter().map(|&p| Circle::new(p, 3, colour.filled())))?;
         }
         let final_value = c.forward[n - 1];

@@ -75,7 +75,11 @@ pub fn print_summary(r: &Results, out: &mut dyn Write) -> io::Result<()> {
             } else {
                 format!(
                     "  [{}]",
-                    e.flags.iter().map(|f| f.as_str()).collect::<Vec<_>>().join(", ")
+                    e.flags
+                        .iter()
+                        .map(|f| f.as_str())
+                        .collect::<Vec<_>>()
+                        .join(", ")
                 )
             };
             writeln!(
@@ -97,7 +101,12 @@ pub fn print_summary(r: &Results, out: &mut dyn Write) -> io::Result<()> {
     if let Some(s) = &r.statistics {
         writeln!(out, "\nAgainst experiment ({u}, bootstrap 95% intervals):")?;
         if s.ligands.n > 0 {
-            writeln!(out, "  ligands (n={}): {}", s.ligands.n, stats_line(&s.ligands))?;
+            writeln!(
+                out,
+                "  ligands (n={}): {}",
+                s.ligands.n,
+                stats_line(&s.ligands)
+            )?;
         }
         if s.edges.n > 0 {
             writeln!(out, "  edges   (n={}): {}", s.edges.n, stats_line(&s.edges))?;
@@ -113,7 +122,11 @@ pub fn print_summary(r: &Results, out: &mut dyn Write) -> io::Result<()> {
             )?;
         }
         if r.missing.len() > 10 {
-            writeln!(out, "  … and {} more (see summary.json)", r.missing.len() - 10)?;
+            writeln!(
+                out,
+                "  … and {} more (see summary.json)",
+                r.missing.len() - 10
+            )?;
         }
     }
     let leg_warnings: usize = r.legs.iter().map(|l| l.warnings.len()).sum();

@@ -5,7 +5,7 @@ use std::collections::BTreeSet;
 
 fn num(v: f64) -> String {
     if v.is_finite() {
-        format!("{v:.6}")
+        format!("{:.6}", v + 0.0)
     } else {
         String::new()
     }
@@ -37,7 +37,15 @@ pub fn legs_csv(r: &Results) -> String {
         .flat_map(|l| l.methods.iter().map(|m| m.method.as_str()))
         .collect();
     let mut h = header(&[
-        "subject", "leg", "replica", "sign", "method", "dg", "sigma", "min_overlap", "windows",
+        "subject",
+        "leg",
+        "replica",
+        "sign",
+        "method",
+        "dg",
+        "sigma",
+        "min_overlap",
+        "windows",
     ]);
     for m in &methods {
         h.push(format!("dg_{m}"));
@@ -124,7 +132,15 @@ pub fn edges_csv(r: &Results) -> String {
 
 /// `results/ligands.csv`: ranked, most favourable ΔG first.
 pub fn ligands_csv(r: &Results) -> String {
-    let h = header(&["ligand", "dg", "sigma", "measured", "rank", "component", "unit"]);
+    let h = header(&[
+        "ligand",
+        "dg",
+        "sigma",
+        "measured",
+        "rank",
+        "component",
+        "unit",
+    ]);
     let rows = r
         .ranked_ligands()
         .iter()

@@ -187,3 +187,56 @@ pub fn assemble(
         warnings,
     })
 }
+
+impl From<crate::campaign::CampaignKind> for CampaignKind {
+    fn from(k: crate::campaign::CampaignKind) -> Self {
+        match k {
+            crate::campaign::CampaignKind::Relative => CampaignKind::Relative,
+            crate::campaign::CampaignKind::Absolute => CampaignKind::Absolute,
+            crate::campaign::CampaignKind::Solvation => CampaignKind::Solvation,
+        }
+    }
+}
+
+/// A campaign leg as the cycle sees it (sign, constant correction, restraint).
+pub fn leg_spec(leg: &crate::campaign::Leg) -> LegSpec {
+    LegSpec {
+        name: leg.name.clone(),
+        sign: f64::from(leg.sign),
+        correction: leg.correction.unwrap_or(0.0),
+        restraint: leg
+            .restraint
+            .as_ref()
+            .map(|r| crate::cycle::BoreschRestraint {
+                r0: r.r0,
+                theta_a: r.theta_a,
+                theta_b: r.theta_b,
+                k_r: r.k_r,
+                k_theta_a: r.k_theta_a,
+                k_theta_b: r.k_theta_b,
+                k_phi_a: r.k_phi_a,
+                k_phi_b: r.k_phi_b,
+                k_phi_c: r.k_phi_c,
+            }),
+    }
+}
+
+impl CampaignInfo {
+    /// Everything [`assemble`] needs, taken from a loaded campaign.
+    pub fn from_campaign(c: &crate::campaign::Campaign) -> Self {
+        let estimator = serde_json::to_value(c.analysis.estimator)
+            .ok()
+            .and_then(|v| v.as_str().map(str::to_string))
+            .unwrap_or_else(|| "mbar".into());
+        CampaignInfo {
+            name: c.name.clone(),
+            kind: c.kind.into(),
+            unit: c.unit,
+            temperature_k: c.temperature_k,
+            estimator,
+            legs: c.legs.iter().map(leg_spec).collect(),
+            reference: c.reference_ligand.clone(),
+            seed: c.seed,
+        }
+    }
+}

@@ -13,7 +13,7 @@ mod results;
 mod summary;
 pub mod tables;
 
-pub use assemble::{assemble, AssembleError, CampaignInfo, MIN_OVERLAP};
+pub use assemble::{assemble, leg_spec, AssembleError, CampaignInfo, MIN_OVERLAP};
 pub use results::{
     Convergence, LegReplica, MethodValue, MissingWork, Results, WindowSummary, RESULTS_SCHEMA,
 };

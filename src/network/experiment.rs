@@ -110,16 +110,37 @@ pub fn parse_measured(
         line,
         message,
     };
+    // Comment and blank lines are removed before the CSV reader sees the text
+    // (its own line counter would skip them); `origin_line` maps back.
+    let mut kept = String::with_capacity(text.len());
+    let mut origin_line: Vec<u64> = Vec::new();
+    for (i, l) in text.lines().enumerate() {
+        let t = l.trim();
+        if t.is_empty() || t.starts_with('#') {
+            continue;
+        }
+        kept.push_str(l);
+        kept.push('\n');
+        origin_line.push(i as u64 + 1);
+    }
+    let line_at = |csv_line: u64| {
+        origin_line
+            .get((csv_line.max(1) - 1) as usize)
+            .copied()
+            .unwrap_or(csv_line)
+    };
     let mut reader = csv::ReaderBuilder::new()
-        .comment(Some(b'#'))
         .trim(csv::Trim::All)
         .flexible(true)
-        .from_reader(text.as_bytes());
-    let header_line = reader.position().line().max(1);
+        .from_reader(kept.as_bytes());
     let headers = reader
         .headers()
-        .map_err(|e| at(header_line, format!("cannot read the header: {e}")))?
+        .map_err(|e| {
+            let line = e.position().map_or(1, |p| line_at(p.line()));
+            at(line, format!("cannot read the header: {e}"))
+        })?
         .clone();
+    let header_line = headers.position().map_or(1, |p| line_at(p.line()));
     let col = |name: &str| headers.iter().position(|h| h.eq_ignore_ascii_case(name));
     let (Some(c_lig), Some(c_kind), Some(c_val), Some(c_unit)) =
         (col("ligand"), col("kind"), col("value"), col("unit"))
@@ -135,10 +156,10 @@ pub fn parse_measured(
     let mut out: Vec<Measured> = Vec::new();
     for record in reader.records() {
         let record = record.map_err(|e| {
-            let line = e.position().map_or(0, |p| p.line());
+            let line = e.position().map_or(0, |p| line_at(p.line()));
             at(line, format!("not a valid CSV row: {e}"))
         })?;
-        let line = record.position().map_or(0, |p| p.line());
+        let line = record.position().map_or(0, |p| line_at(p.line()));
         let field = |c: usize, name: &str| {
             record
                 .get(c)

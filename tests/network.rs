@@ -107,8 +107,8 @@ fn weighted_solve_matches_numpy_lstsq() {
             g[i]
         );
         assert!((l.sigma - cov[i][i].sqrt()).abs() < 1e-9);
-        for j in 0..g.len() {
-            assert!((fit.covariance[i][j] - cov[i][j]).abs() < 1e-9);
+        for (mine, theirs) in fit.covariance[i].iter().zip(&cov[i]) {
+            assert!((mine - theirs).abs() < 1e-9);
         }
     }
 }

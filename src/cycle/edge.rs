@@ -20,6 +20,17 @@ pub enum CampaignKind {
     Solvation,
 }
 
+impl CampaignKind {
+    /// `relative`, `absolute` or `solvation`.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            CampaignKind::Relative => "relative",
+            CampaignKind::Absolute => "absolute",
+            CampaignKind::Solvation => "solvation",
+        }
+    }
+}
+
 /// How one leg enters its cycle.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct LegSpec {

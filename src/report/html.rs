@@ -204,9 +204,9 @@ pub fn render(r: &Results) -> Result<String, PlotError> {
     );
     let _ = writeln!(
         o,
-        "<h1>{}</h1>\n<p class=\"meta\">{:?} campaign · energies in {unit} · {} K · headline estimator {} · {} leg replicas, {} cycles, {} ligands{}</p>",
+        "<h1>{}</h1>\n<p class=\"meta\">{} campaign · energies in {unit} · {} K · headline estimator {} · {} leg replicas, {} cycles, {} ligands{}</p>",
         esc(&r.campaign),
-        r.kind,
+        r.kind.as_str(),
         r.temperature_k,
         esc(&r.estimator),
         r.legs.len(),

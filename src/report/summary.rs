@@ -31,8 +31,12 @@ pub fn print_summary(r: &Results, out: &mut dyn Write) -> io::Result<()> {
     let u = r.unit;
     writeln!(
         out,
-        "{} — {:?} campaign, {} at {} K, headline estimator {}",
-        r.campaign, r.kind, u, r.temperature_k, r.estimator
+        "{} — {} campaign, {} at {} K, headline estimator {}",
+        r.campaign,
+        r.kind.as_str(),
+        u,
+        r.temperature_k,
+        r.estimator
     )?;
     if r.ligands.is_empty() {
         writeln!(out, "No ligand has a result yet.")?;

@@ -275,3 +275,92 @@ fn undefined_numbers_survive_summary_json() {
     assert!(back.legs[0].methods[0].dg.is_nan());
     assert!(back.legs[0].windows[0].dudl_sem.is_nan());
 }
+
+#[test]
+fn absolute_campaign_reports_one_cycle_per_ligand_with_the_restraint_correction() {
+    use legwork::cycle::{BoreschRestraint, CampaignKind, LegSpec};
+    use legwork::report::{assemble, CampaignInfo, LegReplica};
+    use legwork::units::EnergyUnit;
+    let restraint = BoreschRestraint {
+        r0: 6.0,
+        theta_a: 80.0,
+        theta_b: 100.0,
+        k_r: 10.0,
+        k_theta_a: 20.0,
+        k_theta_b: 20.0,
+        k_phi_a: 20.0,
+        k_phi_b: 20.0,
+        k_phi_c: 20.0,
+    };
+    let info = CampaignInfo {
+        name: "orrin-absolute".into(),
+        kind: CampaignKind::Absolute,
+        unit: EnergyUnit::KjPerMol,
+        temperature_k: 300.0,
+        estimator: "mbar".into(),
+        legs: vec![
+            LegSpec {
+                name: "complex".into(),
+                sign: -1.0,
+                correction: 0.0,
+                restraint: Some(restraint),
+            },
+            LegSpec {
+                name: "solvent".into(),
+                sign: 1.0,
+                correction: 0.0,
+                restraint: None,
+            },
+        ],
+        reference: None,
+        seed: 1,
+    };
+    let leg = |s: &str, l: &str, r: u32, dg: f64| LegReplica {
+        subject: s.into(),
+        leg: l.into(),
+        replica: r,
+        sign: if l == "complex" { -1.0 } else { 1.0 },
+        dg,
+        sigma: 0.3,
+        methods: vec![],
+        overlap: vec![],
+        min_adjacent_overlap: Some(0.01),
+        windows: vec![],
+        convergence: None,
+        warnings: vec![],
+    };
+    let legs = vec![
+        leg("ork-01", "complex", 1, 80.0),
+        leg("ork-01", "solvent", 1, 40.0),
+        leg("ork-01", "complex", 2, 82.0),
+        leg("ork-01", "solvent", 2, 41.0),
+        leg("ork-02", "complex", 1, 70.0),
+    ];
+    let r = assemble(&info, legs, vec![], vec![]).unwrap();
+    // ork-02 has no solvent leg yet: left out, with a warning naming it.
+    assert_eq!(r.edges.len(), 1);
+    assert!(r
+        .warnings
+        .iter()
+        .any(|w| w.contains("ork-02") && w.contains("solvent")));
+    assert!(r.warnings.iter().any(|w| w.contains("overlap below")));
+    let release = restraint.release_free_energy(300.0, EnergyUnit::KjPerMol);
+    let expected = -81.0 + 40.5 - release;
+    assert!((r.edges[0].ddg - expected).abs() < 1e-9);
+    assert_eq!(r.ligands.len(), 1);
+    assert!((r.ligands[0].dg - expected).abs() < 1e-9);
+    assert!(r.offsets.is_empty() && r.cycles.is_empty());
+
+    let dir = tempfile::tempdir().unwrap();
+    write_all(dir.path(), &r).unwrap();
+    let (_, rows) = read_csv(&dir.path().join("results/edges.csv"));
+    assert_eq!(rows[0]["ligand_b"], "");
+    assert_eq!(rows[0]["unit"], "kJ/mol");
+    assert!((num(&rows[0], "corrections") - (-release)).abs() < 1e-5);
+    let html = std::fs::read_to_string(dir.path().join("report/index.html")).unwrap();
+    assert!(
+        !html.contains("Network: edge colour"),
+        "no network for absolute campaigns"
+    );
+    assert!(html.contains("Cycles per ligand"));
+}

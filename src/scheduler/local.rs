@@ -176,7 +176,7 @@ pub fn executor_running(paths: &Paths) -> bool {
     };
     match f.try_lock_exclusive() {
         Ok(true) => {
-            let _ = f.unlock();
+            let _ = FileExt::unlock(&f);
             false
         }
         _ => true,

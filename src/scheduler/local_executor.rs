@@ -113,7 +113,7 @@ pub fn run(root: &Path, max_parallel: usize) -> Result<(), SchedulerError> {
             if since.elapsed() > IDLE {
                 // Release, then look once more: a job written just before the
                 // release saw the lock held and started no executor.
-                let _ = lockf.unlock();
+                let _ = FileExt::unlock(&lockf);
                 ex.scan()?;
                 if !ex.has_pending() {
                     return Ok(());

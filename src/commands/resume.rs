@@ -1,6 +1,10 @@
-//! `legwork resume`.
+//! `legwork resume`: resubmit failed and lost tasks (up to
+//! `scheduler.max_attempts`), restarting from checkpoints and with a longer
+//! walltime after a walltime kill; never touches queued or running tasks.
 
+use super::status::{state_exit, with_campaign, SelectArgs};
 use crate::cli::Global;
+use crate::exit::Exit;
 use std::path::PathBuf;
 
 /// Options of `legwork resume`.
@@ -8,9 +12,50 @@ use std::path::PathBuf;
 pub struct Args {
     /// The campaign file.
     pub file: PathBuf,
+    /// Which tasks (default: every failed and lost one; add `--state cancelled`
+    /// to rerun cancelled ones too).
+    #[command(flatten)]
+    pub select: SelectArgs,
+    /// Seconds to wait for another legwork holding the campaign's lock.
+    #[arg(long, default_value_t = 10.0)]
+    pub lock_wait: f64,
 }
 
 /// Runs `legwork resume`.
-pub fn run(args: Args, _global: &Global) -> anyhow::Result<()> {
-    anyhow::bail!("legwork resume is not built yet ({})", args.file.display())
+pub fn run(args: Args, global: &Global) -> anyhow::Result<()> {
+    with_campaign(&args.file, args.lock_wait, global, |c| {
+        let sel = args.select.selection();
+        let r = crate::state::resume(c.state, c.sched.as_mut(), &c.ctx, &sel).map_err(state_exit)?;
+        if !global.quiet {
+            println!(
+                "resubmitting {} tasks ({} from a checkpoint, {} with a longer walltime); submitted {} tasks in {} jobs",
+                r.requeued.len(),
+                r.restarted,
+                r.walltime_raised,
+                r.submitted.tasks,
+                r.submitted.submissions
+            );
+            if r.submitted.held_back > 0 {
+                println!(
+                    "{} more wait for room under scheduler.max_queued; `legwork watch FILE` submits them as the queue drains",
+                    r.submitted.held_back
+                );
+            }
+        }
+        if !r.exhausted.is_empty() {
+            let shown: Vec<&str> = r.exhausted.iter().take(5).map(String::as_str).collect();
+            let msg = format!(
+                "{} tasks used all {} attempts (scheduler.max_attempts) and were not resubmitted: {}{}; `legwork status FILE` shows why",
+                r.exhausted.len(),
+                c.ctx.config.max_attempts,
+                shown.join(", "),
+                if r.exhausted.len() > 5 { ", …" } else { "" }
+            );
+            if r.requeued.is_empty() {
+                return Err(Exit::incomplete(msg).into());
+            }
+            eprintln!("{msg}");
+        }
+        Ok(())
+    })
 }

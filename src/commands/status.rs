@@ -1,16 +1,215 @@
-//! `legwork status`.
+//! `legwork status`: one poll of the scheduler, then a table per leg and stage
+//! (planned / queued / running / done / failed / lost / cancelled) with failure
+//! reasons grouped; `--json` for scripts; `--rescan` rebuilds the state from the
+//! tree and the scheduler first.
+//!
+//! Also the glue every scheduler verb shares: open the campaign, its state and
+//! its scheduler ([`with_campaign`]), and the task selection options.
 
 use crate::cli::Global;
-use std::path::PathBuf;
+use crate::exit::Exit;
+use crate::scheduler::{Scheduler, SchedulerKind};
+use crate::state::{self, CampaignState, Context, Selection, StateError, Summary, TaskState};
+use std::path::{Path, PathBuf};
+use std::time::Duration;
 
 /// Options of `legwork status`.
 #[derive(Debug, clap::Args)]
 pub struct Args {
     /// The campaign file.
     pub file: PathBuf,
+    /// Print JSON instead of the table.
+    #[arg(long)]
+    pub json: bool,
+    /// Rebuild the state from the task markers and the scheduler before showing it.
+    #[arg(long)]
+    pub rescan: bool,
+    /// List every task's id in each failure group (default: the first five).
+    #[arg(long)]
+    pub all: bool,
+    /// Seconds to wait for another legwork holding the campaign's lock.
+    #[arg(long, default_value_t = 10.0)]
+    pub lock_wait: f64,
+}
+
+/// Which tasks a verb touches. Every option may be repeated or comma-separated;
+/// tasks must match every option given.
+#[derive(Debug, Clone, Default, clap::Args)]
+pub struct SelectArgs {
+    /// Only these edges (`a~b`).
+    #[arg(long = "edge", value_delimiter = ',', value_name = "A~B")]
+    pub edges: Vec<String>,
+    /// Only these ligands (absolute or solvation campaigns).
+    #[arg(long = "ligand", value_delimiter = ',', value_name = "ID")]
+    pub ligands: Vec<String>,
+    /// Only these legs.
+    #[arg(long = "leg", value_delimiter = ',', value_name = "NAME")]
+    pub legs: Vec<String>,
+    /// Only these replicas (from 1).
+    #[arg(long = "replica", value_delimiter = ',', value_name = "N")]
+    pub replicas: Vec<u32>,
+    /// Only these windows (from 0).
+    #[arg(long = "window", value_delimiter = ',', value_name = "N")]
+    pub windows: Vec<usize>,
+    /// Only these stages.
+    #[arg(long = "stage", value_delimiter = ',', value_name = "NAME")]
+    pub stages: Vec<String>,
+    /// Only tasks in these states (planned, queued, running, done, failed, lost, cancelled).
+    #[arg(long = "state", value_delimiter = ',', value_name = "STATE")]
+    pub states: Vec<TaskState>,
+    /// Only tasks whose id starts with this (e.g. `ork-01~ork-02/complex/r1/`).
+    #[arg(long = "task", value_name = "ID")]
+    pub tasks: Vec<String>,
+}
+
+impl SelectArgs {
+    /// As a library selection.
+    pub fn selection(&self) -> Selection {
+        let mut subjects = self.edges.clone();
+        subjects.extend(self.ligands.iter().cloned());
+        Selection {
+            subjects,
+            legs: self.legs.clone(),
+            replicas: self.replicas.clone(),
+            windows: self.windows.clone(),
+            stages: self.stages.clone(),
+            states: self.states.clone(),
+            tasks: self.tasks.clone(),
+        }
+    }
+}
+
+/// An open campaign: its state (locked), scheduler and operation context.
+pub struct Opened<'a> {
+    /// The state, locked for writing.
+    pub state: &'a mut CampaignState,
+    /// The scheduler.
+    pub sched: Box<dyn Scheduler>,
+    /// Names, config and hooks.
+    pub ctx: Context<'a>,
+}
+
+/// Turns a state error into the exit code a user should see.
+pub fn state_exit(e: StateError) -> anyhow::Error {
+    match e {
+        StateError::Lock(l) => Exit::busy(l.to_string()).into(),
+        other => anyhow::Error::new(other),
+    }
+}
+
+/// Opens the campaign in `file`, its state and scheduler, and runs `f`.
+pub fn with_campaign<T>(
+    file: &Path,
+    lock_wait: f64,
+    global: &Global,
+    f: impl FnOnce(&mut Opened) -> anyhow::Result<T>,
+) -> anyhow::Result<T> {
+    let _ = global;
+    let loaded = super::watch::load(file)?;
+    let mut state = CampaignState::open(
+        &loaded.root,
+        loaded.plan.clone(),
+        Duration::from_secs_f64(lock_wait.max(0.0)),
+    )
+    .map_err(state_exit)?;
+    let sched = crate::scheduler::build(&loaded.config, &loaded.root, &loaded.name);
+    let mut opened = Opened {
+        state: &mut state,
+        sched,
+        ctx: Context {
+            campaign: &loaded.name,
+            config: &loaded.config,
+            batch_template: loaded.batch_template.clone(),
+            hooks: loaded.hooks.as_ref(),
+        },
+    };
+    f(&mut opened)
 }
 
 /// Runs `legwork status`.
-pub fn run(args: Args, _global: &Global) -> anyhow::Result<()> {
-    anyhow::bail!("legwork status is not built yet ({})", args.file.display())
+pub fn run(args: Args, global: &Global) -> anyhow::Result<()> {
+    with_campaign(&args.file, args.lock_wait, global, |c| {
+        if args.rescan {
+            let n = state::rescan(c.state, c.sched.as_mut(), &c.ctx).map_err(state_exit)?;
+            if !args.json && !global.quiet {
+                println!("rescanned the tree and the scheduler: {n} tasks corrected");
+            }
+        } else {
+            state::poll(c.state, c.sched.as_mut(), &c.ctx).map_err(state_exit)?;
+        }
+        let summary = Summary::with_limit(c.state, c.ctx.config.max_attempts);
+        if args.json {
+            println!("{}", serde_json::to_string_pretty(&summary)?);
+        } else {
+            print!("{}", table(&summary, c.sched.kind(), args.all));
+        }
+        Ok(())
+    })
+}
+
+/// The status table as text.
+pub fn table(s: &Summary, kind: SchedulerKind, all: bool) -> String {
+    let mut out = String::new();
+    let w = s
+        .groups
+        .iter()
+        .map(|(k, _)| k.len())
+        .max()
+        .unwrap_or(5)
+        .max(9);
+    out.push_str(&format!("{:<w$}", "leg/stage"));
+    for st in TaskState::ALL {
+        out.push_str(&format!(" {:>9}", st.name()));
+    }
+    out.push('\n');
+    let row = |out: &mut String, name: &str, c: &state::summary::Counts| {
+        out.push_str(&format!("{name:<w$}"));
+        for st in TaskState::ALL {
+            out.push_str(&format!(" {:>9}", c.get(st)));
+        }
+        out.push('\n');
+    };
+    for (k, c) in &s.groups {
+        row(&mut out, k, c);
+    }
+    row(&mut out, "total", &s.total);
+    if !s.reasons.is_empty() {
+        out.push_str("\nfailed and lost, by reason:\n");
+        for g in &s.reasons {
+            let shown: Vec<&str> = g
+                .tasks
+                .iter()
+                .take(if all { usize::MAX } else { 5 })
+                .map(String::as_str)
+                .collect();
+            let more = g.tasks.len() - shown.len();
+            out.push_str(&format!(
+                "  [{}] {} — {} task{}: {}{}\n",
+                g.kind,
+                g.reason,
+                g.tasks.len(),
+                if g.tasks.len() == 1 { "" } else { "s" },
+                shown.join(", "),
+                if more > 0 {
+                    format!(" (+{more} more; --all lists them)")
+                } else {
+                    String::new()
+                }
+            ));
+        }
+        if !s.exhausted.is_empty() {
+            out.push_str(&format!(
+                "{} of them used every attempt (scheduler.max_attempts); fix the cause, raise the limit, or resume them with --state\n",
+                s.exhausted.len()
+            ));
+        } else {
+            out.push_str("run `legwork resume FILE` to resubmit them\n");
+        }
+    }
+    if s.all_done() {
+        out.push_str("every task is done\n");
+    } else if s.total.live() > 0 && kind == SchedulerKind::Local {
+        out.push_str("the local executor runs the queued tasks in the background; `legwork watch FILE` follows them\n");
+    }
+    out
 }

@@ -45,6 +45,14 @@ pub struct SchedulerConfig {
     /// Free-form options passed to batch templates as `scheduler.options`.
     #[serde(default)]
     pub options: serde_json::Map<String, serde_json::Value>,
+    /// Factor applied to a task's walltime when resume resubmits it after a
+    /// walltime kill.
+    #[serde(default = "default_walltime_factor")]
+    pub walltime_factor: f64,
+    /// Most elements of one array running at once (Slurm `%`, LSF `%`, Grid
+    /// Engine `-tc`; 0: no limit).
+    #[serde(default)]
+    pub array_throttle: usize,
 }
 
 impl Default for SchedulerConfig {
@@ -57,6 +65,8 @@ impl Default for SchedulerConfig {
             max_parallel: None,
             batch_template: None,
             options: Default::default(),
+            walltime_factor: default_walltime_factor(),
+            array_throttle: 0,
         }
     }
 }
@@ -69,4 +79,7 @@ fn default_max_attempts() -> u32 {
 }
 fn default_poll() -> f64 {
     30.0
+}
+fn default_walltime_factor() -> f64 {
+    1.5
 }

@@ -1,0 +1,189 @@
+//! Batch scripts, rendered at submit time from `templates/batch/<kind>.sh.tera`
+//! (or the campaign's `scheduler.batch_template`), and the task wrapper that writes
+//! the start and exit markers.
+
+use super::{hms, SchedulerError, SchedulerKind, Submission};
+use std::collections::HashMap;
+use std::io::Write;
+use std::path::{Path, PathBuf};
+
+/// The built-in batch template for a scheduler kind.
+pub fn builtin_template(kind: SchedulerKind) -> &'static str {
+    match kind {
+        SchedulerKind::Local => include_str!("../../templates/batch/local.sh.tera"),
+        SchedulerKind::Slurm => include_str!("../../templates/batch/slurm.sh.tera"),
+        SchedulerKind::Pbs => include_str!("../../templates/batch/pbs.sh.tera"),
+        SchedulerKind::Sge => include_str!("../../templates/batch/sge.sh.tera"),
+        SchedulerKind::Lsf => include_str!("../../templates/batch/lsf.sh.tera"),
+    }
+}
+
+/// The task wrapper. Arguments: task directory, attempt, job id. It writes
+/// `.started.json` (time, host, job id, attempt), runs `bash task.sh` in the task
+/// directory and writes `.exited.json` (exit code or signal, end time) — also when
+/// the scheduler sends SIGTERM at walltime or on cancellation, because the trap
+/// records the signal and waits for the task to end.
+pub const WRAPPER: &str = r#"#!/bin/bash
+# legwork task wrapper (written by legwork; do not edit). Args: DIR ATTEMPT JOB
+dir=$1; attempt=$2; job=$3
+cd "$dir" || { echo "legwork: cannot enter task directory $dir" >&2; exit 2; }
+now() { date -u +%Y-%m-%dT%H:%M:%S.%NZ; }
+esc() { local s=${1//\\/\\\\}; printf '%s' "${s//\"/\\\"}"; }
+started=$(now)
+rm -f .exited.json
+printf '{"time":"%s","host":"%s","job":"%s","attempt":%s,"pid":%s}\n' \
+  "$started" "$(esc "$(hostname)")" "$(esc "$job")" "$attempt" "$$" > .started.json.tmp &&
+  mv -f .started.json.tmp .started.json
+sig=
+child=
+on_signal() {
+  [ -n "$sig" ] || sig=$1
+  [ -n "$child" ] && kill -"$1" "$child" 2>/dev/null
+}
+for s in TERM INT HUP USR1 USR2 XCPU; do trap "on_signal $s" "$s"; done
+bash task.sh &
+child=$!
+wait "$child"; code=$?
+# wait returns early when a trapped signal arrives: wait again for the real end.
+while kill -0 "$child" 2>/dev/null; do wait "$child"; code=$?; done
+if [ -z "$sig" ] && [ "$code" -gt 128 ]; then sig=$(kill -l $((code - 128)) 2>/dev/null); fi
+if [ -n "$sig" ]; then sigjson="\"$sig\""; else sigjson=null; fi
+printf '{"time":"%s","started":"%s","job":"%s","attempt":%s,"code":%s,"signal":%s}\n' \
+  "$(now)" "$started" "$(esc "$job")" "$attempt" "$code" "$sigjson" > .exited.json.tmp &&
+  mv -f .exited.json.tmp .exited.json
+exit "$code"
+"#;
+
+/// Writes the wrapper to `<root>/.legwork/wrapper.sh` (when it differs) and
+/// returns its path.
+pub fn install_wrapper(root: &Path) -> Result<PathBuf, SchedulerError> {
+    let path = root.join(".legwork").join("wrapper.sh");
+    if std::fs::read_to_string(&path).ok().as_deref() == Some(WRAPPER) {
+        return Ok(path);
+    }
+    write_atomic(&path, WRAPPER.as_bytes())?;
+    Ok(path)
+}
+
+/// Writes a file by temp + fsync + rename, creating parent folders.
+pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<(), SchedulerError> {
+    let dir = path.parent().expect("a file path");
+    std::fs::create_dir_all(dir).map_err(|e| SchedulerError::io(dir, e))?;
+    let tmp = dir.join(format!(
+        ".{}.tmp{}",
+        path.file_name().unwrap().to_string_lossy(),
+        std::process::id()
+    ));
+    let mut f = std::fs::File::create(&tmp).map_err(|e| SchedulerError::io(&tmp, e))?;
+    f.write_all(bytes)
+        .and_then(|_| f.sync_all())
+        .map_err(|e| SchedulerError::io(&tmp, e))?;
+    std::fs::rename(&tmp, path).map_err(|e| SchedulerError::io(path, e))
+}
+
+/// Comma list of array indices with runs collapsed (`0-3,7,9-10`), which every
+/// supported scheduler reads.
+pub fn index_spec(indices: &[usize]) -> String {
+    let mut out = Vec::new();
+    let mut i = 0;
+    while i < indices.len() {
+        let start = indices[i];
+        let mut end = start;
+        while i + 1 < indices.len() && indices[i + 1] == end + 1 {
+            i += 1;
+            end = indices[i];
+        }
+        out.push(if start == end {
+            start.to_string()
+        } else {
+            format!("{start}-{end}")
+        });
+        i += 1;
+    }
+    out.join(",")
+}
+
+fn shell_quote(value: &tera::Value, _: &HashMap<String, tera::Value>) -> tera::Result<tera::Value> {
+    let s = match value {
+        tera::Value::String(s) => s.clone(),
+        other => other.to_string(),
+    };
+    Ok(tera::Value::String(format!("'{}'", s.replace('\'', r"'\''"))))
+}
+
+/// Renders the batch script of `sub` for scheduler `kind` with `template` (the
+/// campaign's own, if it set one) and writes it to `sub.script`.
+pub fn render(
+    kind: SchedulerKind,
+    template: Option<&Path>,
+    sub: &Submission,
+    campaign: &str,
+    options: &serde_json::Map<String, serde_json::Value>,
+    wrapper: &Path,
+) -> Result<(), SchedulerError> {
+    let (name, text) = match template {
+        Some(p) => (
+            p.display().to_string(),
+            std::fs::read_to_string(p).map_err(|e| SchedulerError::io(p, e))?,
+        ),
+        None => (
+            format!("built-in {kind:?} batch template"),
+            builtin_template(kind).to_string(),
+        ),
+    };
+    let mut tera = tera::Tera::default();
+    tera.register_filter("shell_quote", shell_quote);
+    let terr = |e: tera::Error| {
+        let mut detail = e.to_string();
+        let mut src = std::error::Error::source(&e);
+        while let Some(s) = src {
+            detail.push_str(&format!(": {s}"));
+            src = s.source();
+        }
+        SchedulerError::Template {
+            template: name.clone(),
+            detail,
+        }
+    };
+    tera.add_raw_template("batch", &text).map_err(terr)?;
+    let indices: Vec<usize> = sub.elements.iter().map(|e| e.array_index).collect();
+    let r = &sub.resources;
+    let ctx = serde_json::json!({
+        "campaign": { "name": campaign, "root": sub.root },
+        "batch": { "id": sub.batch_id },
+        "job": { "name": sub.name, "log_dir": sub.log_dir },
+        "array": {
+            "indices": indices,
+            "spec": index_spec(&indices),
+            "first": indices.first().copied().unwrap_or(0),
+            "last": indices.last().copied().unwrap_or(0),
+            "count": indices.len(),
+            "throttle": sub.throttle,
+        },
+        "resources": {
+            "cpus": r.cpus, "gpus": r.gpus, "memory_mb": r.memory_mb,
+            "walltime_s": r.walltime_s, "walltime": hms(r.walltime_s),
+            "walltime_minutes": r.walltime_s.div_ceil(60).max(1),
+        },
+        "scheduler": { "kind": format!("{kind:?}").to_lowercase(), "options": options },
+        "elements": sub.elements.iter().map(|e| serde_json::json!({
+            "index": e.array_index, "dir": e.dir, "attempt": e.attempt, "id": e.task_id,
+        })).collect::<Vec<_>>(),
+        "wrapper": wrapper,
+    });
+    let ctx = tera::Context::from_value(ctx).map_err(terr)?;
+    let out = tera.render("batch", &ctx).map_err(terr)?;
+    write_atomic(&sub.script, out.as_bytes())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn index_specs_collapse_runs() {
+        assert_eq!(index_spec(&[0, 1, 2, 3, 7, 9, 10]), "0-3,7,9-10");
+        assert_eq!(index_spec(&[5]), "5");
+        assert_eq!(index_spec(&[]), "");
+    }
+}

@@ -1,9 +1,11 @@
 //! Reading window output (window tables and configurable columns) into compact
 //! samples in reduced units. The only part of the numeric path that does I/O.
 
+pub mod cache;
 mod columns;
 pub mod config;
 mod error;
+pub mod gather;
 mod meta;
 mod parse;
 mod samples;

@@ -1,16 +1,108 @@
-//! `legwork collect`.
+//! `legwork collect`: estimate every leg replica whose windows are done, close the
+//! cycles, solve the network, compare with experiment, and write results/ and the
+//! report. What is not finished is listed, not guessed.
 
 use crate::cli::Global;
+use crate::collect::gather::{collect_campaign, CollectCounts};
+use crate::commands::check::load_or_exit;
+use crate::exit::Exit;
+use crate::plan;
+use crate::report::{self, Results, Written};
+use crate::state::{CampaignState, TaskState};
+use indicatif::{ProgressBar, ProgressDrawTarget, ProgressStyle};
+use std::io::Write;
 use std::path::PathBuf;
+use std::time::Duration;
 
 /// Options of `legwork collect`.
 #[derive(Debug, clap::Args)]
 pub struct Args {
     /// The campaign file.
     pub file: PathBuf,
+    /// The campaign's tree is here instead of the file's `root:`.
+    #[arg(long, value_name = "DIR")]
+    pub root: Option<PathBuf>,
+    /// Seconds to wait for another legwork holding the campaign's lock.
+    #[arg(long, default_value_t = 10.0)]
+    pub lock_wait: f64,
 }
 
 /// Runs `legwork collect`.
-pub fn run(args: Args, _global: &Global) -> anyhow::Result<()> {
-    anyhow::bail!("legwork collect is not built yet ({})", args.file.display())
+pub fn run(args: Args, global: &Global) -> anyhow::Result<()> {
+    let loaded = load_or_exit(&args.file, args.root.clone(), false)?;
+    let campaign = loaded.campaign;
+    let plan = plan::expand(&campaign);
+    let state = CampaignState::open(
+        &campaign.root,
+        plan,
+        Duration::from_secs_f64(args.lock_wait.max(0.0)),
+    )
+    .map_err(super::status::state_exit)?;
+    let (results, counts) = collect_with_state(&campaign, &state, global)?;
+    let written = report::write_all(&campaign.root, &results)?;
+    print_outcome(&results, &counts, &written, global)?;
+    if counts.legs == 0 {
+        return Err(Exit::incomplete(format!(
+            "no leg replica of {} has all its windows done yet; `legwork status {}` shows where they are",
+            campaign.name,
+            args.file.display()
+        ))
+        .into());
+    }
+    Ok(())
+}
+
+/// Collects the campaign using `state` to know which tasks are done, with a
+/// progress bar on standard error.
+pub fn collect_with_state(
+    campaign: &crate::campaign::Campaign,
+    state: &CampaignState,
+    global: &Global,
+) -> anyhow::Result<(Results, CollectCounts)> {
+    let plan = state.plan();
+    let bar = ProgressBar::with_draw_target(
+        Some(plan.windows.len() as u64),
+        if global.quiet {
+            ProgressDrawTarget::hidden()
+        } else {
+            ProgressDrawTarget::stderr()
+        },
+    );
+    bar.set_style(
+        ProgressStyle::with_template("{prefix:>12} [{bar:30}] {pos}/{len} leg replicas")
+            .expect("valid template")
+            .progress_chars("=> "),
+    );
+    bar.set_prefix("estimating");
+    let done = |i: plan::TaskIndex| state.state(i) == TaskState::Done;
+    let result = collect_campaign(campaign, plan, &done, &|n, _| bar.set_position(n as u64));
+    bar.finish_and_clear();
+    result.map_err(|e| Exit::new(crate::exit::ExitKind::Failure, e.to_string()).into())
+}
+
+/// Prints the terminal summary, what was read, and where the files are.
+pub fn print_outcome(
+    results: &Results,
+    counts: &CollectCounts,
+    written: &Written,
+    global: &Global,
+) -> anyhow::Result<()> {
+    if global.quiet {
+        return Ok(());
+    }
+    let stdout = std::io::stdout();
+    let mut out = stdout.lock();
+    report::print_summary(results, &mut out)?;
+    writeln!(
+        out,
+        "\nCollected {} leg replicas ({} windows parsed, {} from cache); {} not finished.",
+        counts.legs, counts.parsed, counts.cached, counts.missing
+    )?;
+    writeln!(
+        out,
+        "Tables in {}\nReport: {}",
+        written.results_dir.display(),
+        written.html.display()
+    )?;
+    Ok(())
 }

@@ -244,12 +244,19 @@ impl Local {
                 Ok(())
             });
         }
-        tracing::debug!("starting the local executor: {} submit --local-executor {}", exe.display(), self.root.display());
+        tracing::debug!(
+            "starting the local executor: {} submit --local-executor {}",
+            exe.display(),
+            self.root.display()
+        );
         let mut child = cmd.spawn().map_err(|e| SchedulerError::io(&exe, e))?;
         let pid = child.id().to_string();
         let start = Instant::now();
         loop {
-            if std::fs::read_to_string(self.paths.ready()).ok().as_deref().map(str::trim)
+            if std::fs::read_to_string(self.paths.ready())
+                .ok()
+                .as_deref()
+                .map(str::trim)
                 == Some(pid.as_str())
             {
                 // Reap it in the background when it exits.
@@ -368,7 +375,9 @@ impl Scheduler for Local {
             running = true;
         }
         let statuses: Vec<(String, Option<JobStatusFile>)> = if unfinished {
-            jobs.iter().map(|j| (j.clone(), self.read_status(j))).collect()
+            jobs.iter()
+                .map(|j| (j.clone(), self.read_status(j)))
+                .collect()
         } else {
             statuses
         };
@@ -378,7 +387,9 @@ impl Scheduler for Local {
                 if !running && !e.is_terminal() {
                     continue;
                 }
-                result.elements.insert(self.element_id(&job, idx), e.status());
+                result
+                    .elements
+                    .insert(self.element_id(&job, idx), e.status());
             }
         }
         Ok(result)

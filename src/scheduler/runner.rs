@@ -321,6 +321,9 @@ mod tests {
             backoff: Duration::from_millis(1),
         };
         let err = r.run("sleep", &["5".into()]).unwrap_err();
-        assert!(matches!(err, RunError::Timeout { attempts: 2, .. }), "{err}");
+        assert!(
+            matches!(err, RunError::Timeout { attempts: 2, .. }),
+            "{err}"
+        );
     }
 }

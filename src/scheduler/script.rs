@@ -108,7 +108,10 @@ fn shell_quote(value: &tera::Value, _: &HashMap<String, tera::Value>) -> tera::R
         tera::Value::String(s) => s.clone(),
         other => other.to_string(),
     };
-    Ok(tera::Value::String(format!("'{}'", s.replace('\'', r"'\''"))))
+    Ok(tera::Value::String(format!(
+        "'{}'",
+        s.replace('\'', r"'\''")
+    )))
 }
 
 /// Renders the batch script of `sub` for scheduler `kind` with `template` (the

@@ -18,7 +18,7 @@ use crate::plan::{Plan, TaskIndex};
 use manifest::{Entry, Manifest};
 use rayon::prelude::*;
 use std::io::Write;
-use std::os::unix::fs::PermissionsExt;
+use std::os::unix::fs::OpenOptionsExt;
 use std::path::{Component, Path, PathBuf};
 
 /// The file render writes in each task directory.
@@ -243,10 +243,16 @@ fn write_atomic(
     let dir = path.parent().expect("task files have a directory");
     std::fs::create_dir_all(dir).map_err(io)?;
     let tmp = dir.join(format!(".{TASK_FILE}.tmp-{}", std::process::id()));
-    let mut f = std::fs::File::create(&tmp).map_err(io)?;
+    // Executable for its owner and readable by all (the umask may take more away).
+    let mut f = std::fs::OpenOptions::new()
+        .write(true)
+        .create(true)
+        .truncate(true)
+        .mode(0o755)
+        .open(&tmp)
+        .map_err(io)?;
     let res = (|| {
         f.write_all(content.as_bytes())?;
-        f.set_permissions(std::fs::Permissions::from_mode(0o755))?;
         let meta = f.metadata()?;
         drop(f);
         std::fs::rename(&tmp, path)?;

@@ -550,3 +550,60 @@ fn check_summary_counts_and_hours() {
     assert_eq!(v["core_hours"], 152.0);
     assert_eq!(v["gpu_hours"], 36.0);
 }
+
+#[test]
+fn absolute_campaign_with_components_and_restraint() {
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::create_dir(dir.path().join("templates")).unwrap();
+    std::fs::write(
+        dir.path().join("templates/w.sh.tera"),
+        "{{ ligand.id }} {{ window.lambdas.vdw }} {{ vars.box }} {{ components | join(sep=\",\") }}\n",
+    )
+    .unwrap();
+    std::fs::write(
+        dir.path().join("campaign.yaml"),
+        r#"campaign: abs
+kind: absolute
+unit: kJ/mol
+templates: templates
+vars: { box: 30 }
+ligands:
+  - { id: x1, vars: { box: 45 } }
+  - x2
+legs:
+  bound:
+    sign: -1
+    correction: -1.25
+    restraint: { kind: boresch, r0: 5.0, theta_a: 90, theta_b: 60, k_r: 10, k_theta_a: 10, k_theta_b: 10, k_phi_a: 10, k_phi_b: 10, k_phi_c: 10 }
+    lambdas:
+      components:
+        restraint: [0, 1, 1, 1]
+        charge: [0, 0, 1, 1]
+        vdw: [0, 0, 0, 1]
+stages:
+  - { name: run, per: window, template: w.sh.tera }
+"#,
+    )
+    .unwrap();
+    let c = load(dir.path());
+    assert_eq!(c.kind, campaign::CampaignKind::Absolute);
+    let leg = &c.legs[0];
+    assert_eq!(leg.correction, Some(-1.25));
+    assert_eq!(leg.restraint.as_ref().unwrap().theta_b, 60.0);
+    assert_eq!(leg.lambdas.components, vec!["restraint", "charge", "vdw"]);
+    let p = plan::expand(&c);
+    // 2 ligands × 1 leg × 1 replica × 4 windows
+    assert_eq!(p.tasks.len(), 8);
+    assert_eq!(
+        p.leg("bound").unwrap().lambdas,
+        vec![0.0, 1.0 / 3.0, 2.0 / 3.0, 1.0]
+    );
+    write(&c, false);
+    let got = std::fs::read_to_string(c.root.join("x1/bound/r1/w03/run/task.sh")).unwrap();
+    assert_eq!(
+        got, "x1 1 45 restraint,charge,vdw\n",
+        "ligand vars win over campaign vars"
+    );
+    let got = std::fs::read_to_string(c.root.join("x2/bound/r1/w01/run/task.sh")).unwrap();
+    assert_eq!(got, "x2 0 30 restraint,charge,vdw\n");
+}

@@ -403,6 +403,23 @@ fn paths_cannot_escape_the_root() {
 }
 
 #[test]
+fn a_symlink_in_the_tree_is_refused() {
+    let (dir, c) = basic();
+    let elsewhere = dir.path().join("elsewhere");
+    std::fs::create_dir_all(&elsewhere).unwrap();
+    std::fs::create_dir_all(&c.root).unwrap();
+    std::os::unix::fs::symlink(&elsewhere, c.root.join("lig-1~lig-2")).unwrap();
+    let p = plan::expand(&c);
+    let err = render::write_tree(&c, &p, &RenderOptions::default()).unwrap_err();
+    assert!(matches!(err, RenderError::Escape(_)), "{err}");
+    assert_eq!(
+        std::fs::read_dir(&elsewhere).unwrap().count(),
+        0,
+        "nothing written through the link"
+    );
+}
+
+#[test]
 fn ids_that_would_escape_or_inject_are_rejected_by_check() {
     for (bad, why) in [
         ("../../etc", "starts with '.'"),

@@ -287,6 +287,30 @@ fn progress_bar(show: bool, len: usize, msg: &'static str) -> indicatif::Progres
     pb
 }
 
+/// A symbolic link among the upper levels of the tree (subject, leg, replica)
+/// could send writes outside the root: refuse it.
+fn refuse_symlinked_dirs(root: &Path, plan: &Plan) -> Result<(), RenderError> {
+    let mut seen = std::collections::HashSet::new();
+    for b in &plan.batches {
+        let Some(&t) = b.tasks.first() else { continue };
+        let mut rel = PathBuf::new();
+        for (depth, c) in plan.tasks[t].dir.components().enumerate() {
+            if depth >= 3 {
+                break;
+            }
+            rel.push(c);
+            if seen.insert(rel.clone()) {
+                if let Ok(m) = std::fs::symlink_metadata(root.join(&rel)) {
+                    if m.file_type().is_symlink() {
+                        return Err(RenderError::Escape(rel));
+                    }
+                }
+            }
+        }
+    }
+    Ok(())
+}
+
 /// Renders every task of the plan into the tree under the campaign root.
 ///
 /// Every template is rendered before anything is written, so a template error
@@ -300,6 +324,7 @@ pub fn write_tree(
         return Err(RenderError::Escape(campaign.root.clone()));
     }
     let tera = templates::load_tera(campaign).map_err(RenderError::Templates)?;
+    refuse_symlinked_dirs(&campaign.root, plan)?;
     let builder = ContextBuilder::new(campaign, plan);
     let mut man = Manifest::load(&campaign.root);
     let fp = fingerprint(campaign);

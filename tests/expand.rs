@@ -379,6 +379,19 @@ fn undefined_variable_names_task_and_template_and_writes_nothing() {
         other => panic!("{other}"),
     }
     assert!(!c.root.exists(), "nothing written");
+    let out = Command::cargo_bin("legwork")
+        .unwrap()
+        .arg("check")
+        .arg(dir.path().join("campaign.yaml"))
+        .assert()
+        .code(2)
+        .get_output()
+        .clone();
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert!(
+        stderr.contains("/prepare: template") && stderr.contains("no_such_thing"),
+        "check finds it too: {stderr}"
+    );
 }
 
 #[test]

@@ -424,6 +424,21 @@ pub fn write_tree(
     }
 }
 
+/// Renders (without writing) the first task of every stage × leg, so that `check`
+/// finds an undefined variable before `expand` does.
+pub fn probe(campaign: &Campaign, plan: &Plan) -> Result<(), RenderError> {
+    let tera = templates::load_tera(campaign).map_err(RenderError::Templates)?;
+    let builder = ContextBuilder::new(campaign, plan);
+    let mut seen = std::collections::HashSet::new();
+    for b in &plan.batches {
+        let Some(&t) = b.tasks.first() else { continue };
+        if seen.insert((b.stage.as_str(), plan.tasks[t].leg.as_str())) {
+            render_one(&tera, &builder, campaign, plan, t, 1, false)?;
+        }
+    }
+    Ok(())
+}
+
 /// Re-renders the `task.sh` of several tasks for a resubmission (attempt,
 /// restart), updating the manifest once. A file the user edited is left as it is
 /// (its path is still returned, and a warning logged).

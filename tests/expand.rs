@@ -637,3 +637,29 @@ stages:
     let got = std::fs::read_to_string(c.root.join("x2/bound/r1/w01/run/task.sh")).unwrap();
     assert_eq!(got, "x2 0 30 restraint,charge,vdw\n");
 }
+
+#[test]
+fn a_file_half_written_by_a_crashed_expand_is_replaced() {
+    let (_d, c) = basic();
+    write(&c, false);
+    let rel = "lig-1~lig-2/solvent/r1/w02/production/task.sh";
+    let f = c.root.join(rel);
+    let full = std::fs::read_to_string(&f).unwrap();
+    // What a crash leaves: a partial file, no manifest entry, the marker.
+    std::fs::write(&f, &full[..full.len() / 2]).unwrap();
+    let m = c.root.join(".legwork/render-manifest.tsv");
+    let kept: String = std::fs::read_to_string(&m).unwrap().lines().filter(|l| !l.starts_with(rel)).map(|l| format!("{l}\n")).collect();
+    std::fs::write(&m, &kept).unwrap();
+    let marker = c.root.join(".legwork/render-in-progress");
+    std::fs::write(&marker, "1\n").unwrap();
+    let r = write(&c, false);
+    assert!(r.protected.is_empty());
+    assert_eq!(r.written, 1);
+    assert_eq!(std::fs::read_to_string(&f).unwrap(), full);
+    assert!(!marker.exists());
+    // Without the marker the same unknown file is the user's, and protected.
+    std::fs::write(&f, "mine\n").unwrap();
+    std::fs::write(&m, &kept).unwrap();
+    let r = write(&c, false);
+    assert_eq!(r.protected, vec![PathBuf::from(rel)]);
+}

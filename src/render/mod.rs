@@ -93,9 +93,19 @@ pub fn confined(root: &Path, rel: &Path) -> Result<PathBuf, RenderError> {
 
 enum Action {
     Unchanged,
+    /// Replace an existing file of ours (temp + rename).
     Write(String),
+    /// Create a file believed absent; see [`create_new`].
+    Create(String),
     Protected,
     Adopt(Entry),
+}
+
+/// What a write did.
+enum Outcome {
+    Written(String, Entry),
+    Adopted(String, Entry),
+    Protected(String),
 }
 
 struct Decision {
@@ -149,16 +159,22 @@ fn decide(
     plan: &Plan,
     i: TaskIndex,
     man: &Manifest,
-    fast: bool,
-    force: bool,
+    flags: Flags,
     render: &dyn Fn(TaskIndex, u32, bool) -> Result<String, RenderError>,
 ) -> Result<Decision, RenderError> {
+    let Flags { fast, force, dry_run, crashed } = flags;
     let task = &plan.tasks[i];
     let rel_path = task.dir.join(TASK_FILE);
     let abs = confined(&campaign.root, &rel_path)?;
     let rel = rel_path.to_string_lossy().into_owned();
     let entry = man.entries.get(&rel);
     let (attempt, restart) = entry.map_or((1, false), |e| (e.attempt, e.restart));
+    if entry.is_none() && !dry_run {
+        // Not ours yet: try to create it, and look at what is there only if
+        // something is (saves a stat per file on a first expand).
+        let content = render(i, attempt, restart)?;
+        return Ok(Decision { rel, action: Action::Create(content), attempt, restart });
+    }
     let meta = std::fs::symlink_metadata(&abs).ok();
     if let Some(m) = &meta {
         if !m.file_type().is_file() {
@@ -198,7 +214,9 @@ fn decide(
             }
         }
         (Some(_), None) => {
-            if disk_hash(&abs).as_deref() == Some(new_hash.as_str()) {
+            if crashed {
+                Action::Write(content)
+            } else if disk_hash(&abs).as_deref() == Some(new_hash.as_str()) {
                 adopt(&abs, new_hash, attempt, restart)
             } else if force {
                 Action::Write(content)
@@ -225,6 +243,69 @@ fn adopt(abs: &Path, hash: String, attempt: u32, restart: bool) -> Action {
             restart,
         }),
         Err(_) => Action::Unchanged,
+    }
+}
+
+/// How [`decide`] treats files.
+#[derive(Clone, Copy)]
+struct Flags {
+    fast: bool,
+    force: bool,
+    dry_run: bool,
+    /// A previous expand stopped while writing: files on disk without a manifest
+    /// entry may be its half-written ones, so they are ours to replace.
+    crashed: bool,
+}
+
+/// Where an expand records that it is writing; present at the start of the next
+/// one only if that one stopped half-way.
+fn in_progress_path(root: &Path) -> PathBuf {
+    root.join(".legwork").join("render-in-progress")
+}
+
+/// Creates a task file that did not exist, writing it in place (no reader can be
+/// looking at a file that did not exist; a crash half-way is covered by the
+/// in-progress marker). If something is already there, decides as for an
+/// existing file: adopt it when equal, replace it when forced or left by a crashed
+/// run, else protect it.
+fn create_new(root: &Path, d: &Decision, content: &str, force: bool, crashed: bool) -> Result<Outcome, RenderError> {
+    let path = root.join(&d.rel);
+    let io = |source| RenderError::Io { path: path.clone(), source };
+    let dir = path.parent().expect("task files have a directory");
+    std::fs::create_dir_all(dir).map_err(io)?;
+    match std::fs::OpenOptions::new().write(true).create_new(true).mode(0o755).open(&path) {
+        Ok(mut f) => {
+            f.write_all(content.as_bytes()).map_err(io)?;
+            let meta = f.metadata().map_err(io)?;
+            Ok(Outcome::Written(
+                d.rel.clone(),
+                Entry {
+                    hash: manifest::hash(content.as_bytes()),
+                    size: meta.len(),
+                    mtime_ns: manifest::mtime_ns(&meta),
+                    attempt: d.attempt,
+                    restart: d.restart,
+                },
+            ))
+        }
+        Err(e) if e.kind() == std::io::ErrorKind::AlreadyExists => {
+            let m = std::fs::symlink_metadata(&path).map_err(io)?;
+            if !m.file_type().is_file() {
+                return Err(RenderError::Escape(PathBuf::from(&d.rel)));
+            }
+            let new_hash = manifest::hash(content.as_bytes());
+            if !crashed && disk_hash(&path).as_deref() == Some(new_hash.as_str()) {
+                return Ok(match adopt(&path, new_hash, d.attempt, d.restart) {
+                    Action::Adopt(e) => Outcome::Adopted(d.rel.clone(), e),
+                    _ => Outcome::Protected(d.rel.clone()),
+                });
+            }
+            if force || crashed {
+                return write_atomic(&path, content, d.attempt, d.restart).map(|e| Outcome::Written(d.rel.clone(), e));
+            }
+            Ok(Outcome::Protected(d.rel.clone()))
+        }
+        Err(e) => Err(io(e)),
     }
 }
 
@@ -325,24 +406,22 @@ pub fn write_tree(
     }
     let tera = templates::load_tera(campaign).map_err(RenderError::Templates)?;
     refuse_symlinked_dirs(&campaign.root, plan)?;
-    let builder = ContextBuilder::new(campaign, plan);
+    let builder = ContextBuilder::for_rendering(campaign, plan);
     let mut man = Manifest::load(&campaign.root);
     let fp = fingerprint(campaign);
     let fast = !opts.force && man.fingerprint == fp;
+    let crashed = in_progress_path(&campaign.root).exists();
+    let flags = Flags { fast, force: opts.force, dry_run: opts.dry_run, crashed };
     let render = |i, a, r| render_one(&tera, &builder, campaign, plan, i, a, r);
 
-    let pb = progress_bar(
-        opts.progress && plan.tasks.len() >= 200,
-        plan.tasks.len(),
-        "rendering",
-    );
+    let pb = progress_bar(opts.progress && plan.tasks.len() >= 200, plan.tasks.len(), "rendering");
     let indices: Vec<TaskIndex> = (0..plan.tasks.len()).collect();
     let decisions: Vec<Decision> = indices
         .par_chunks(256)
         .map(|chunk| {
             let out = chunk
                 .iter()
-                .map(|&i| decide(campaign, plan, i, &man, fast, opts.force, &render))
+                .map(|&i| decide(campaign, plan, i, &man, flags, &render))
                 .collect::<Result<Vec<_>, _>>();
             pb.inc(chunk.len() as u64);
             out
@@ -353,11 +432,8 @@ pub fn write_tree(
         .collect();
     pb.finish_and_clear();
 
-    let mut report = TreeReport {
-        dry_run: opts.dry_run,
-        ..Default::default()
-    };
-    let mut to_write: Vec<(&Decision, &String)> = Vec::new();
+    let mut report = TreeReport { dry_run: opts.dry_run, ..Default::default() };
+    let mut to_write: Vec<&Decision> = Vec::new();
     let mut changed = man.fingerprint != fp;
     for d in &decisions {
         match &d.action {
@@ -370,26 +446,32 @@ pub fn write_tree(
                 }
             }
             Action::Protected => report.protected.push(PathBuf::from(&d.rel)),
-            Action::Write(c) => to_write.push((d, c)),
+            Action::Write(_) | Action::Create(_) => to_write.push(d),
         }
     }
-    report.written = to_write.len();
     if opts.dry_run {
+        report.written = to_write.len();
         return Ok(report);
     }
-    let pb = progress_bar(
-        opts.progress && to_write.len() >= 200,
-        to_write.len(),
-        "writing",
-    );
-    let results: Vec<Result<(String, Entry), RenderError>> = to_write
+    let marker = in_progress_path(&campaign.root);
+    if !to_write.is_empty() {
+        let io = |source| RenderError::Io { path: marker.clone(), source };
+        std::fs::create_dir_all(marker.parent().expect("has a parent")).map_err(io)?;
+        std::fs::write(&marker, format!("{}\n", std::process::id())).map_err(io)?;
+    }
+    let pb = progress_bar(opts.progress && to_write.len() >= 200, to_write.len(), "writing");
+    let results: Vec<Result<Outcome, RenderError>> = to_write
         .par_chunks(128)
         .flat_map_iter(|chunk| {
             let out: Vec<_> = chunk
                 .iter()
-                .map(|(d, c)| {
-                    let abs = campaign.root.join(&d.rel);
-                    write_atomic(&abs, c, d.attempt, d.restart).map(|e| (d.rel.clone(), e))
+                .map(|d| match &d.action {
+                    Action::Create(c) => create_new(&campaign.root, d, c, opts.force, crashed),
+                    Action::Write(c) => {
+                        let abs = campaign.root.join(&d.rel);
+                        write_atomic(&abs, c, d.attempt, d.restart).map(|e| Outcome::Written(d.rel.clone(), e))
+                    }
+                    _ => unreachable!("only writes are queued"),
                 })
                 .collect();
             pb.inc(chunk.len() as u64);
@@ -400,23 +482,31 @@ pub fn write_tree(
     let mut first_err = None;
     for r in results {
         match r {
-            Ok((rel, e)) => {
+            Ok(Outcome::Written(rel, e)) => {
+                report.written += 1;
                 man.entries.insert(rel, e);
                 changed = true;
             }
+            Ok(Outcome::Adopted(rel, e)) => {
+                report.unchanged += 1;
+                man.entries.insert(rel, e);
+                changed = true;
+            }
+            Ok(Outcome::Protected(rel)) => report.protected.push(PathBuf::from(rel)),
             Err(e) => {
                 first_err.get_or_insert(e);
             }
         }
     }
+    report.protected.sort();
     if first_err.is_none() {
         man.fingerprint = fp;
     }
     if changed {
-        man.save(&campaign.root).map_err(|source| RenderError::Io {
-            path: manifest::path(&campaign.root),
-            source,
-        })?;
+        man.save(&campaign.root).map_err(|source| RenderError::Io { path: manifest::path(&campaign.root), source })?;
+    }
+    if first_err.is_none() && (changed || crashed) {
+        let _ = std::fs::remove_file(&marker);
     }
     match first_err {
         Some(e) => Err(e),
@@ -428,7 +518,7 @@ pub fn write_tree(
 /// finds an undefined variable before `expand` does.
 pub fn probe(campaign: &Campaign, plan: &Plan) -> Result<(), RenderError> {
     let tera = templates::load_tera(campaign).map_err(RenderError::Templates)?;
-    let builder = ContextBuilder::new(campaign, plan);
+    let builder = ContextBuilder::for_rendering(campaign, plan);
     let mut seen = std::collections::HashSet::new();
     for b in &plan.batches {
         let Some(&t) = b.tasks.first() else { continue };
@@ -448,7 +538,7 @@ pub fn render_tasks(
     tasks: &[(TaskIndex, u32, bool)],
 ) -> Result<Vec<PathBuf>, RenderError> {
     let tera = templates::load_tera(campaign).map_err(RenderError::Templates)?;
-    let builder = ContextBuilder::new(campaign, plan);
+    let builder = ContextBuilder::for_rendering(campaign, plan);
     let mut man = Manifest::load(&campaign.root);
     let mut rendered = Vec::with_capacity(tasks.len());
     for &(i, attempt, restart) in tasks {

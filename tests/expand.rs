@@ -648,7 +648,12 @@ fn a_file_half_written_by_a_crashed_expand_is_replaced() {
     // What a crash leaves: a partial file, no manifest entry, the marker.
     std::fs::write(&f, &full[..full.len() / 2]).unwrap();
     let m = c.root.join(".legwork/render-manifest.tsv");
-    let kept: String = std::fs::read_to_string(&m).unwrap().lines().filter(|l| !l.starts_with(rel)).map(|l| format!("{l}\n")).collect();
+    let kept: String = std::fs::read_to_string(&m)
+        .unwrap()
+        .lines()
+        .filter(|l| !l.starts_with(rel))
+        .map(|l| format!("{l}\n"))
+        .collect();
     std::fs::write(&m, &kept).unwrap();
     let marker = c.root.join(".legwork/render-in-progress");
     std::fs::write(&marker, "1\n").unwrap();

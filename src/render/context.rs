@@ -54,12 +54,14 @@ impl<'a> ContextBuilder<'a> {
     /// and a template can only reach a variable by naming it.
     pub fn for_rendering(campaign: &'a Campaign, plan: &'a Plan) -> Self {
         let mentions = |word: &str| {
-            let mut files: Vec<std::path::PathBuf> = crate::campaign::templates::template_files(&campaign.templates_dir)
-                .map(|f| f.into_iter().map(|(_, p)| p).collect())
-                .unwrap_or_default();
+            let mut files: Vec<std::path::PathBuf> =
+                crate::campaign::templates::template_files(&campaign.templates_dir)
+                    .map(|f| f.into_iter().map(|(_, p)| p).collect())
+                    .unwrap_or_default();
             files.extend(campaign.stages.iter().map(|s| s.template_path.clone()));
             files.iter().any(|p| {
-                std::fs::read_to_string(p).map_or(true, |t| t.contains(word) || t.contains("__tera_context"))
+                std::fs::read_to_string(p)
+                    .map_or(true, |t| t.contains(word) || t.contains("__tera_context"))
             })
         };
         Self::build(campaign, plan, mentions("states"))

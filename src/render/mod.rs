@@ -162,7 +162,12 @@ fn decide(
     flags: Flags,
     render: &dyn Fn(TaskIndex, u32, bool) -> Result<String, RenderError>,
 ) -> Result<Decision, RenderError> {
-    let Flags { fast, force, dry_run, crashed } = flags;
+    let Flags {
+        fast,
+        force,
+        dry_run,
+        crashed,
+    } = flags;
     let task = &plan.tasks[i];
     let rel_path = task.dir.join(TASK_FILE);
     let abs = confined(&campaign.root, &rel_path)?;
@@ -173,7 +178,12 @@ fn decide(
         // Not ours yet: try to create it, and look at what is there only if
         // something is (saves a stat per file on a first expand).
         let content = render(i, attempt, restart)?;
-        return Ok(Decision { rel, action: Action::Create(content), attempt, restart });
+        return Ok(Decision {
+            rel,
+            action: Action::Create(content),
+            attempt,
+            restart,
+        });
     }
     let meta = std::fs::symlink_metadata(&abs).ok();
     if let Some(m) = &meta {
@@ -268,12 +278,26 @@ fn in_progress_path(root: &Path) -> PathBuf {
 /// in-progress marker). If something is already there, decides as for an
 /// existing file: adopt it when equal, replace it when forced or left by a crashed
 /// run, else protect it.
-fn create_new(root: &Path, d: &Decision, content: &str, force: bool, crashed: bool) -> Result<Outcome, RenderError> {
+fn create_new(
+    root: &Path,
+    d: &Decision,
+    content: &str,
+    force: bool,
+    crashed: bool,
+) -> Result<Outcome, RenderError> {
     let path = root.join(&d.rel);
-    let io = |source| RenderError::Io { path: path.clone(), source };
+    let io = |source| RenderError::Io {
+        path: path.clone(),
+        source,
+    };
     let dir = path.parent().expect("task files have a directory");
     std::fs::create_dir_all(dir).map_err(io)?;
-    match std::fs::OpenOptions::new().write(true).create_new(true).mode(0o755).open(&path) {
+    match std::fs::OpenOptions::new()
+        .write(true)
+        .create_new(true)
+        .mode(0o755)
+        .open(&path)
+    {
         Ok(mut f) => {
             f.write_all(content.as_bytes()).map_err(io)?;
             let meta = f.metadata().map_err(io)?;
@@ -301,7 +325,8 @@ fn create_new(root: &Path, d: &Decision, content: &str, force: bool, crashed: bo
                 });
             }
             if force || crashed {
-                return write_atomic(&path, content, d.attempt, d.restart).map(|e| Outcome::Written(d.rel.clone(), e));
+                return write_atomic(&path, content, d.attempt, d.restart)
+                    .map(|e| Outcome::Written(d.rel.clone(), e));
             }
             Ok(Outcome::Protected(d.rel.clone()))
         }
@@ -368,6 +393,53 @@ fn progress_bar(show: bool, len: usize, msg: &'static str) -> indicatif::Progres
     pb
 }
 
+/// Which task files are exactly as the manifest recorded them (size and mtime),
+/// by one `fstatat` each relative to its batch's directory: a re-expand with
+/// unchanged inputs is mostly this, and short relative lookups are much cheaper
+/// than walking every absolute path.
+fn unchanged_by_stat(root: &Path, plan: &Plan, man: &Manifest) -> Vec<bool> {
+    use nix::fcntl::AtFlags;
+    use std::os::fd::AsRawFd;
+    let per_batch: Vec<Vec<(TaskIndex, bool)>> = plan
+        .batches
+        .par_iter()
+        .map(|b| {
+            let Some(&first) = b.tasks.first() else {
+                return Vec::new();
+            };
+            // The replica folder (`<subject>/<leg>/r<k>`) holds every task of the batch.
+            let base: PathBuf = plan.tasks[first].dir.components().take(3).collect();
+            let dir = std::fs::File::open(root.join(&base)).ok();
+            b.tasks
+                .iter()
+                .map(|&t| {
+                    let rel = plan.tasks[t].dir.join(TASK_FILE);
+                    let ok = (|| {
+                        let dir = dir.as_ref()?;
+                        let e = man.entries.get(rel.to_str()?)?;
+                        let below = rel.strip_prefix(&base).ok()?;
+                        let st = nix::sys::stat::fstatat(
+                            Some(dir.as_raw_fd()),
+                            below,
+                            AtFlags::AT_SYMLINK_NOFOLLOW,
+                        )
+                        .ok()?;
+                        let is_file = st.st_mode & libc::S_IFMT == libc::S_IFREG;
+                        let mtime = st.st_mtime as u64 * 1_000_000_000 + st.st_mtime_nsec as u64;
+                        Some(is_file && st.st_size as u64 == e.size && mtime == e.mtime_ns)
+                    })();
+                    (t, ok == Some(true))
+                })
+                .collect()
+        })
+        .collect();
+    let mut out = vec![false; plan.tasks.len()];
+    for (t, ok) in per_batch.into_iter().flatten() {
+        out[t] = ok;
+    }
+    out
+}
+
 /// A symbolic link among the upper levels of the tree (subject, leg, replica)
 /// could send writes outside the root: refuse it.
 fn refuse_symlinked_dirs(root: &Path, plan: &Plan) -> Result<(), RenderError> {
@@ -411,17 +483,42 @@ pub fn write_tree(
     let fp = fingerprint(campaign);
     let fast = !opts.force && man.fingerprint == fp;
     let crashed = in_progress_path(&campaign.root).exists();
-    let flags = Flags { fast, force: opts.force, dry_run: opts.dry_run, crashed };
+    let flags = Flags {
+        fast,
+        force: opts.force,
+        dry_run: opts.dry_run,
+        crashed,
+    };
     let render = |i, a, r| render_one(&tera, &builder, campaign, plan, i, a, r);
 
-    let pb = progress_bar(opts.progress && plan.tasks.len() >= 200, plan.tasks.len(), "rendering");
+    let unchanged = if fast {
+        unchanged_by_stat(&campaign.root, plan, &man)
+    } else {
+        vec![false; plan.tasks.len()]
+    };
+    let pb = progress_bar(
+        opts.progress && plan.tasks.len() >= 200,
+        plan.tasks.len(),
+        "rendering",
+    );
     let indices: Vec<TaskIndex> = (0..plan.tasks.len()).collect();
     let decisions: Vec<Decision> = indices
         .par_chunks(256)
         .map(|chunk| {
             let out = chunk
                 .iter()
-                .map(|&i| decide(campaign, plan, i, &man, flags, &render))
+                .map(|&i| {
+                    if unchanged[i] {
+                        Ok(Decision {
+                            rel: String::new(),
+                            action: Action::Unchanged,
+                            attempt: 1,
+                            restart: false,
+                        })
+                    } else {
+                        decide(campaign, plan, i, &man, flags, &render)
+                    }
+                })
                 .collect::<Result<Vec<_>, _>>();
             pb.inc(chunk.len() as u64);
             out
@@ -432,7 +529,10 @@ pub fn write_tree(
         .collect();
     pb.finish_and_clear();
 
-    let mut report = TreeReport { dry_run: opts.dry_run, ..Default::default() };
+    let mut report = TreeReport {
+        dry_run: opts.dry_run,
+        ..Default::default()
+    };
     let mut to_write: Vec<&Decision> = Vec::new();
     let mut changed = man.fingerprint != fp;
     for d in &decisions {
@@ -455,11 +555,18 @@ pub fn write_tree(
     }
     let marker = in_progress_path(&campaign.root);
     if !to_write.is_empty() {
-        let io = |source| RenderError::Io { path: marker.clone(), source };
+        let io = |source| RenderError::Io {
+            path: marker.clone(),
+            source,
+        };
         std::fs::create_dir_all(marker.parent().expect("has a parent")).map_err(io)?;
         std::fs::write(&marker, format!("{}\n", std::process::id())).map_err(io)?;
     }
-    let pb = progress_bar(opts.progress && to_write.len() >= 200, to_write.len(), "writing");
+    let pb = progress_bar(
+        opts.progress && to_write.len() >= 200,
+        to_write.len(),
+        "writing",
+    );
     let results: Vec<Result<Outcome, RenderError>> = to_write
         .par_chunks(128)
         .flat_map_iter(|chunk| {
@@ -469,7 +576,8 @@ pub fn write_tree(
                     Action::Create(c) => create_new(&campaign.root, d, c, opts.force, crashed),
                     Action::Write(c) => {
                         let abs = campaign.root.join(&d.rel);
-                        write_atomic(&abs, c, d.attempt, d.restart).map(|e| Outcome::Written(d.rel.clone(), e))
+                        write_atomic(&abs, c, d.attempt, d.restart)
+                            .map(|e| Outcome::Written(d.rel.clone(), e))
                     }
                     _ => unreachable!("only writes are queued"),
                 })
@@ -503,7 +611,10 @@ pub fn write_tree(
         man.fingerprint = fp;
     }
     if changed {
-        man.save(&campaign.root).map_err(|source| RenderError::Io { path: manifest::path(&campaign.root), source })?;
+        man.save(&campaign.root).map_err(|source| RenderError::Io {
+            path: manifest::path(&campaign.root),
+            source,
+        })?;
     }
     if first_err.is_none() && (changed || crashed) {
         let _ = std::fs::remove_file(&marker);

@@ -118,7 +118,13 @@ pub(crate) fn parse_rows(
                 ));
                 break;
             }
-            parse_line(path, line, line_no, spec, nf, &mut row, &mut drow)?;
+            let quick = match spec.delim {
+                Delim::Byte(d) => quick_line(line, d, spec, &mut row, &mut drow),
+                Delim::Whitespace => false,
+            };
+            if !quick {
+                parse_line(path, line, line_no, spec, nf, &mut row, &mut drow)?;
+            }
             reduced.extend_from_slice(&row);
             dudl.extend_from_slice(&drow);
             frames += 1;
@@ -221,6 +227,48 @@ fn parse_number(s: &[u8]) -> Option<(f64, usize)> {
 #[cold]
 fn slow(s: &[u8]) -> Option<(f64, usize)> {
     fast_float2::parse_partial::<f64, _>(s).ok()
+}
+
+/// The common case of a single-byte delimiter and no stray spaces, with as few
+/// branches as possible. Returns false on anything unusual (spaces, a bad or
+/// non-finite value, a wrong field count): the careful parser then reads the line
+/// again and reports exactly what is wrong.
+#[inline(always)]
+fn quick_line(line: &[u8], d: u8, spec: &RowSpec, row: &mut [f64], drow: &mut [f64]) -> bool {
+    let n = line.len();
+    let mut p = 0usize;
+    let last = spec.slots.len() - 1;
+    for (f, slot) in spec.slots.iter().enumerate() {
+        match *slot {
+            Slot::Skip => {
+                while p < n && line[p] != d {
+                    p += 1;
+                }
+            }
+            Slot::Energy(j) => match parse_number(&line[p..]) {
+                Some((v, used)) if v.is_finite() => {
+                    row[j] = v * spec.scale;
+                    p += used;
+                }
+                _ => return false,
+            },
+            Slot::Dudl(c) => match parse_number(&line[p..]) {
+                Some((v, used)) if v.is_finite() => {
+                    drow[c] = v * spec.scale;
+                    p += used;
+                }
+                _ => return false,
+            },
+        }
+        if f < last {
+            if p < n && line[p] == d {
+                p += 1;
+            } else {
+                return false;
+            }
+        }
+    }
+    p == n
 }
 
 #[inline]

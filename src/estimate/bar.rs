@@ -29,6 +29,13 @@ fn sech2_quarter(x: f64) -> f64 {
 /// error (Shirts et al. 2003, Phys. Rev. Lett. 91, 140601, Eq. 10, the
 /// maximum-likelihood form of Bennett's variance).
 pub fn bar(wf: &[f64], wr: &[f64]) -> Result<(f64, f64), EstimateError> {
+    let x = bar_solve(wf, wr, 1e-13)?;
+    Ok((x, bar_sigma(wf, wr, x)))
+}
+
+/// ΔF of Bennett's equation to a relative tolerance `tol`, without the variance (a
+/// cheap starting point for MBAR needs no more than 1e-7).
+pub fn bar_solve(wf: &[f64], wr: &[f64], tol: f64) -> Result<f64, EstimateError> {
     let (nf, nr) = (wf.len() as f64, wr.len() as f64);
     if wf.len() < 2 || wr.len() < 2 {
         return Err(EstimateError::Insufficient(format!(
@@ -88,7 +95,7 @@ pub fn bar(wf: &[f64], wr: &[f64]) -> Result<(f64, f64), EstimateError> {
                 x + 4.0
             };
         }
-        if (next - x).abs() < 1e-13 * (1.0 + x.abs()) || hi - lo < 1e-13 * (1.0 + x.abs()) {
+        if (next - x).abs() < tol * (1.0 + x.abs()) || hi - lo < tol * (1.0 + x.abs()) {
             x = next;
             converged = true;
             break;
@@ -103,6 +110,13 @@ pub fn bar(wf: &[f64], wr: &[f64]) -> Result<(f64, f64), EstimateError> {
             "BAR: the self-consistent iteration did not converge (do the two states overlap at all?)".into(),
         ));
     }
+    Ok(x)
+}
+
+/// The asymptotic standard error of BAR's ΔF = `x` (see [`bar`]).
+fn bar_sigma(wf: &[f64], wr: &[f64], x: f64) -> f64 {
+    let (nf, nr) = (wf.len() as f64, wr.len() as f64);
+    let m = (nf / nr).ln();
     let n = nf + nr;
     let mut acc = 0.0;
     for &w in wf {
@@ -130,7 +144,7 @@ pub fn bar(wf: &[f64], wr: &[f64]) -> Result<(f64, f64), EstimateError> {
         let (f1, f2, r1, r2) = (f1 / nf, f2 / nf, r1 / nr, r2 / nr);
         var = (f2 / (f1 * f1) - 1.0) / nf + (r2 / (r1 * r1) - 1.0) / nr;
     }
-    Ok((x, var.max(0.0).sqrt()))
+    var.max(0.0).sqrt()
 }
 
 /// Each sample's first-order influence on the BAR estimate `df` of one pair (the

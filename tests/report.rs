@@ -152,6 +152,11 @@ fn html_is_one_self_contained_file_with_plots_and_cautions() {
     assert!(html.contains("±1 and ±2 kcal/mol"));
     assert!(html.contains("TI area"));
     assert!(html.contains("Forward and reverse convergence"));
+    // A leg with two λ components gets one dU/dλ series (and legend entry) each.
+    assert!(
+        html.contains(">\ncharge\n</text>") && html.contains(">\nvdw\n</text>"),
+        "component legend missing"
+    );
     // The cautions paragraph.
     assert!(html.contains("id=\"cautions\""));
     assert!(html.contains("not measurements"));
@@ -363,4 +368,29 @@ fn absolute_campaign_reports_one_cycle_per_ligand_with_the_restraint_correction(
         "no network for absolute campaigns"
     );
     assert!(html.contains("Cycles per ligand"));
+}
+
+#[test]
+fn ti_area_sums_over_lambda_components() {
+    use legwork::report::plots::trapezoid;
+    use legwork::report::WindowSummary;
+    // Trapezoid rule by hand: component a, λ 0 → 1 with dU/dλ 2 → 4: area 3;
+    // component b, λ 0 → 0.5 → 1 with 1, 1, 3: 0.5 + 1 = 1.5. Total 4.5.
+    let w = |c: &str, lambda: f64, dudl_mean: f64| WindowSummary {
+        lambda,
+        component: Some(c.into()),
+        dudl_mean,
+        dudl_sem: 0.1,
+        frames: None,
+        discarded: None,
+        inefficiency: None,
+    };
+    let ws = [
+        w("a", 0.0, 2.0),
+        w("a", 1.0, 4.0),
+        w("b", 0.0, 1.0),
+        w("b", 0.5, 1.0),
+        w("b", 1.0, 3.0),
+    ];
+    assert!((trapezoid(&ws) - 4.5).abs() < 1e-12);
 }

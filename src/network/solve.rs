@@ -378,7 +378,15 @@ pub fn annotate_edges(edges: &mut [EdgeResult], fit: &NetworkResult) {
             .edges
             .get(i)
             .filter(|f| f.a == e.ligand_a && f.b == b && f.ddg == e.ddg)
-            .or_else(|| fit.edges.iter().find(|f| f.a == e.ligand_a && f.b == b));
+            .or_else(|| {
+                let same = |f: &&EdgeFit| f.a == e.ligand_a && f.b == b;
+                let mut it = fit.edges.iter().filter(same);
+                fit.edges
+                    .iter()
+                    .filter(same)
+                    .find(|f| f.ddg == e.ddg)
+                    .or_else(|| it.next())
+            });
         if let Some(f) = found {
             e.fitted = Some(f.fitted);
             e.residual = Some(f.residual);

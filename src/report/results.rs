@@ -70,12 +70,16 @@ pub struct MethodValue {
     pub sigma: f64,
 }
 
-/// One λ window of a leg replica.
+/// One λ window of a leg replica (for a leg with several λ components, one
+/// entry per window and component).
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct WindowSummary {
-    /// Primary λ of the window's state.
+    /// λ of the window's state (of `component`, when given).
     pub lambda: f64,
-    /// Mean dU/dλ, campaign unit (per unit λ).
+    /// The λ component this dU/dλ belongs to; absent for single-component legs.
+    #[serde(default)]
+    pub component: Option<String>,
+    /// Mean dU/dλ (of `component`), campaign unit per unit λ.
     #[serde(deserialize_with = "super::lenient::f64")]
     pub dudl_mean: f64,
     /// Standard error of the mean dU/dλ (decorrelated).

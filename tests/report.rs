@@ -394,3 +394,16 @@ fn ti_area_sums_over_lambda_components() {
     ];
     assert!((trapezoid(&ws) - 4.5).abs() < 1e-12);
 }
+
+#[test]
+fn a_failed_write_leaves_nothing_half_written() {
+    let dir = tempfile::tempdir().unwrap();
+    // report/ cannot be created because a file is in the way.
+    std::fs::write(dir.path().join("report"), "in the way").unwrap();
+    let err = write_all(dir.path(), &fixture::results()).unwrap_err();
+    assert!(err.to_string().contains("index.html"), "{err}");
+    let left: Vec<_> = std::fs::read_dir(dir.path().join("results"))
+        .map(|d| d.map(|e| e.unwrap().file_name()).collect())
+        .unwrap_or_default();
+    assert!(left.is_empty(), "files left behind: {left:?}");
+}

@@ -299,7 +299,7 @@ pub fn render(r: &Results) -> Result<String, PlotError> {
         "<h2 id=\"edges\">{}</h2>\n<p class=\"small\">σ = √(σ<sub>replicas</sub>² + σ<sub>spread</sub>²): the replicas' own errors and the scatter between replicas, both shown.</p>",
         if relative { "Edges" } else { "Cycles per ligand" }
     );
-    o.push_str("<table><tr><th class=\"l\">subject</th><th>ΔΔG</th><th>σ</th><th>σ replicas</th><th>σ spread</th><th>replicas</th><th>corrections</th><th>network</th><th>residual</th><th class=\"l\">flags</th></tr>\n");
+    o.push_str("<table><tr><th class=\"l\">subject</th><th>ΔΔG</th><th>σ</th><th>σ replicas</th><th>σ spread</th><th>replicas</th><th class=\"l\">per replica</th><th>corrections</th><th>network</th><th>residual</th><th class=\"l\">flags</th></tr>\n");
     for e in r.worst_edges() {
         let flags: String = e
             .flags
@@ -308,13 +308,18 @@ pub fn render(r: &Results) -> Result<String, PlotError> {
             .collect();
         let _ = writeln!(
             o,
-            "<tr><td class=\"l\">{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td class=\"l\">{}</td></tr>",
+            "<tr><td class=\"l\">{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td class=\"l small\">{}</td><td>{}</td><td>{}</td><td>{}</td><td class=\"l\">{}</td></tr>",
             esc(&e.subject),
             f2(e.ddg),
             f2(e.sigma),
             f2(e.sigma_replicas),
             f2(e.sigma_spread),
             e.legs.iter().map(|l| l.combined.n).min().unwrap_or(0),
+            e.replicas
+                .iter()
+                .map(|x| f2(x.ddg))
+                .collect::<Vec<_>>()
+                .join(", "),
             f2(e.corrections.iter().map(|c| c.value).sum()),
             o2(e.fitted),
             o2(e.residual),
@@ -376,7 +381,22 @@ pub fn render(r: &Results) -> Result<String, PlotError> {
     if !r.legs.is_empty() {
         o.push_str("<h2 id=\"legs\">Legs</h2>\n");
         let many = r.legs.len() > LEG_PLOT_LIMIT;
-        for (i, l) in r.legs.iter().enumerate() {
+        // Group by subject (in order of first appearance), then leg, then replica.
+        let mut order: Vec<&str> = Vec::new();
+        for l in &r.legs {
+            if !order.contains(&l.subject.as_str()) {
+                order.push(&l.subject);
+            }
+        }
+        let mut legs: Vec<&LegReplica> = r.legs.iter().collect();
+        legs.sort_by_key(|l| {
+            (
+                order.iter().position(|s| *s == l.subject),
+                l.leg.clone(),
+                l.replica,
+            )
+        });
+        for (i, l) in legs.into_iter().enumerate() {
             let open = i == 0 || r.legs.len() <= OPEN_LEGS;
             let worth = !l.warnings.is_empty()
                 || l.min_adjacent_overlap

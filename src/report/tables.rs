@@ -91,6 +91,7 @@ pub fn edges_csv(r: &Results) -> String {
         "sigma_replicas",
         "sigma_spread",
         "replicas",
+        "replica_ddg",
         "corrections",
         "fitted",
         "residual",
@@ -115,6 +116,11 @@ pub fn edges_csv(r: &Results) -> String {
                     .min()
                     .unwrap_or(0)
                     .to_string(),
+                e.replicas
+                    .iter()
+                    .map(|x| num(x.ddg))
+                    .collect::<Vec<_>>()
+                    .join(";"),
                 num(e.corrections.iter().map(|c| c.value).sum()),
                 opt(e.fitted),
                 opt(e.residual),

@@ -255,7 +255,7 @@ pub fn render(r: &Results) -> Result<String, PlotError> {
     o.push_str("</div>\n");
 
     if let Some(s) = &r.statistics {
-        let _ = writeln!(o, "<h2 id=\"experiment\">Against experiment</h2>\n<p class=\"small\">Bootstrap 95% intervals in brackets ({} resamples, seed {}). Errors in {unit}.</p>", s.ligands.resamples, s.ligands.seed);
+        let _ = writeln!(o, "<h2 id=\"experiment\">Against experiment</h2>\n<p class=\"small\">Bootstrap 95% intervals in brackets ({} resamples, seed {}). Errors in {unit}. Per-ligand errors depend on the offset: when it is fixed by the measured mean, RMSE and MUE measure the scatter about that mean; per-edge errors do not depend on it.</p>", s.ligands.resamples, s.ligands.seed);
         o.push_str("<table><tr><th class=\"l\">over</th><th>n</th><th>RMSE</th><th>MUE</th><th>Pearson R</th><th>R²</th><th>Kendall τ</th></tr>\n");
         stats_row(&mut o, "ligands (ΔG)", &s.ligands);
         stats_row(&mut o, "edges (ΔΔG)", &s.edges);

@@ -254,7 +254,7 @@ pub fn predicted_vs_measured(r: &Results) -> Result<Option<String>, PlotError> {
             pts.iter()
                 .map(|p| Circle::new((p.1, p.2), 5, ORANGE.filled())),
         )?;
-        if pts.len() <= 30 {
+        if pts.len() <= 15 {
             chart.draw_series(pts.iter().map(|p| {
                 EmptyElement::at((p.1, p.2))
                     + Text::new(

@@ -271,3 +271,24 @@ fn bad_inputs_are_errors() {
     let err = solve(&[e(0, 1, 1.0, 0.1)], &[], Some("ork-99")).unwrap_err();
     assert!(err.to_string().contains("ork-99"));
 }
+
+#[test]
+fn residuals_satisfy_the_normal_equations() {
+    // Least squares (Gauss): at the minimum, Aᵀ W r = 0, i.e. at every ligand
+    // the weighted residuals of its edges cancel (in − out).
+    for seed in 0..20 {
+        let (_, edges) = random_network(9, 8, 100 + seed);
+        let fit = solve(&edges, &[], None).unwrap();
+        let mut net = std::collections::HashMap::<String, f64>::new();
+        for f in &fit.edges {
+            let w = 1.0 / (f.sigma * f.sigma);
+            *net.entry(f.b.clone()).or_default() += w * f.residual;
+            *net.entry(f.a.clone()).or_default() -= w * f.residual;
+        }
+        for (l, v) in net {
+            assert!(v.abs() < 1e-8, "seed {seed}, {l}: {v}");
+        }
+        // χ² = Σ w r² and dof = E − N + 1 for a connected network.
+        assert_eq!(fit.dof, edges.len() - 9 + 1);
+    }
+}

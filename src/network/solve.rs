@@ -148,7 +148,8 @@ pub enum NetworkError {
 /// campaign unit), the `reference` ligand at ΔG = 0, or a zero series mean.
 /// The covariance is the inverse of the normal matrix with one ligand per
 /// component held fixed, then carried through the offset: for an offset
-/// G′ = (I − 1cᵀ) G + const, Cov′ = (I − 1cᵀ) Cov (I − 1cᵀ)ᵀ.
+/// G′ = (I − 1cᵀ) G + const, Cov′ = (I − 1cᵀ) Cov (I − 1cᵀ)ᵀ. Measured values
+/// enter only through that constant; their own errors are not propagated.
 pub fn solve(
     edges: &[NetworkEdge],
     measured: &[Measured],

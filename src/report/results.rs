@@ -126,7 +126,8 @@ pub struct LegReplica {
     pub leg: String,
     /// Replica number (from 1).
     pub replica: u32,
-    /// Sign of the leg in its cycle.
+    /// Sign of the leg in its cycle (shown in the tables; [`crate::report::assemble`]
+    /// closes cycles with the campaign's own leg signs).
     pub sign: f64,
     /// ΔG of the headline estimator, campaign unit.
     #[serde(deserialize_with = "super::lenient::f64")]

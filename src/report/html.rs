@@ -69,6 +69,7 @@ th { background:#eef3f2; font-weight:600; }
 td.l, th.l { text-align:left; }
 .flag { display:inline-block; background:#fbe3df; color:var(--bad); border-radius:3px; padding:0 5px; margin-right:3px; font-size:12px; }
 .ok { color:#2f855a; } .bad { color:var(--bad); font-weight:600; }
+details.inner { border:none; padding:0; margin:4px 0; }
 details { background:#fff; border:1px solid var(--line); border-radius:6px; margin:10px 0; padding:8px 12px; }
 summary { cursor:pointer; }
 .small { font-size:13px; color:var(--muted); }
@@ -103,11 +104,55 @@ fn stats_row(out: &mut String, what: &str, s: &Stats) {
 }
 
 fn figure(out: &mut String, svg: &str, caption: &str) {
+    // A <title> inside the SVG names the plot for screen readers and tooltips.
+    let svg = match svg.find('>') {
+        Some(i) if svg.starts_with("<svg") => format!(
+            "{} role=\"img\"><title>{}</title>{}",
+            &svg[..i],
+            esc(caption),
+            &svg[i + 1..]
+        ),
+        _ => svg.to_string(),
+    };
     let _ = writeln!(
         out,
         "<figure>{svg}<figcaption>{}</figcaption></figure>",
         esc(caption)
     );
+}
+
+fn windows_table(out: &mut String, l: &LegReplica) {
+    if l.windows.is_empty() {
+        return;
+    }
+    let multi = l.windows.iter().any(|w| w.component.is_some());
+    out.push_str("<details class=\"inner\"><summary class=\"small\">per-window diagnostics</summary><table><tr>");
+    if multi {
+        out.push_str("<th class=\"l\">component</th>");
+    }
+    out.push_str("<th>λ</th><th>⟨dU/dλ⟩</th><th>SEM</th><th>frames</th><th>discarded</th><th>inefficiency g</th></tr>\n");
+    let opt_u = |v: Option<u64>| v.map(|v| v.to_string()).unwrap_or_else(|| "–".into());
+    for w in &l.windows {
+        out.push_str("<tr>");
+        if multi {
+            let _ = write!(
+                out,
+                "<td class=\"l\">{}</td>",
+                esc(w.component.as_deref().unwrap_or(""))
+            );
+        }
+        let _ = writeln!(
+            out,
+            "<td>{:.3}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td></tr>",
+            w.lambda,
+            f2(w.dudl_mean),
+            f2(w.dudl_sem),
+            opt_u(w.frames),
+            opt_u(w.discarded),
+            o2(w.inefficiency)
+        );
+    }
+    out.push_str("</table></details>\n");
 }
 
 fn leg_section(
@@ -169,6 +214,7 @@ fn leg_section(
         }
         out.push_str("</ul>\n");
     }
+    windows_table(out, l);
     if !with_plots {
         out.push_str("<p class=\"small\">Plots left out to keep the page small (many legs, nothing flagged here); the numbers are in results/summary.json.</p></details>\n");
         return Ok(());

@@ -214,8 +214,8 @@ fn leg_section(
         }
         out.push_str("</ul>\n");
     }
-    windows_table(out, l);
     if !with_plots {
+        windows_table(out, l);
         out.push_str("<p class=\"small\">Plots left out to keep the page small (many legs, nothing flagged here); the numbers are in results/summary.json.</p></details>\n");
         return Ok(());
     }
@@ -235,7 +235,9 @@ fn leg_section(
             figure(out, &svg, "ΔG from the first (forward) or last (reverse) part of every window. Curves that meet early suggest converged sampling.");
         }
     }
-    out.push_str("</div></details>\n");
+    out.push_str("</div>\n");
+    windows_table(out, l);
+    out.push_str("</details>\n");
     Ok(())
 }
 

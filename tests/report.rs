@@ -407,3 +407,29 @@ fn a_failed_write_leaves_nothing_half_written() {
         .unwrap_or_default();
     assert!(left.is_empty(), "files left behind: {left:?}");
 }
+
+#[test]
+fn legwork_report_finds_the_root_from_the_campaign_file() {
+    // The root defaults to a folder named after the campaign beside its file.
+    let dir = tempfile::tempdir().unwrap();
+    let src = Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/fixtures/campaigns/basic");
+    for entry in walkdir::WalkDir::new(&src) {
+        let entry = entry.unwrap();
+        let to = dir.path().join(entry.path().strip_prefix(&src).unwrap());
+        if entry.file_type().is_dir() {
+            std::fs::create_dir_all(&to).unwrap();
+        } else {
+            std::fs::copy(entry.path(), &to).unwrap();
+        }
+    }
+    let file = dir.path().join("campaign.yaml");
+    let loaded = legwork::campaign::load(&file, &Default::default()).unwrap();
+    write_all(&loaded.campaign.root, &fixture::results()).unwrap();
+    std::fs::remove_file(loaded.campaign.root.join("report/index.html")).unwrap();
+    Command::cargo_bin("legwork")
+        .unwrap()
+        .args(["report", file.to_str().unwrap()])
+        .assert()
+        .success();
+    assert!(loaded.campaign.root.join("report/index.html").is_file());
+}

@@ -433,3 +433,27 @@ fn legwork_report_finds_the_root_from_the_campaign_file() {
         .success();
     assert!(loaded.campaign.root.join("report/index.html").is_file());
 }
+
+#[test]
+fn odd_inputs_still_render() {
+    // Undefined numbers, a ragged overlap matrix, mismatched convergence series
+    // and no measurements at all must not stop the page from being written.
+    let mut r = fixture::results();
+    r.ligands[0].dg = f64::NAN;
+    r.legs[0].overlap.pop();
+    r.legs[0].windows[3].lambda = f64::NAN;
+    if let Some(c) = r.legs[1].convergence.as_mut() {
+        c.reverse.truncate(3);
+        c.forward_sigma.clear();
+    }
+    let dir = tempfile::tempdir().unwrap();
+    write_all(dir.path(), &r).unwrap();
+    r.measured.clear();
+    r.statistics = None;
+    for l in &mut r.ligands {
+        l.measured = None;
+    }
+    write_all(dir.path(), &r).unwrap();
+    let html = std::fs::read_to_string(dir.path().join("report/index.html")).unwrap();
+    assert!(html.contains("No measured values"));
+}

@@ -208,6 +208,7 @@ pub fn predicted_vs_measured(r: &Results) -> Result<Option<String>, PlotError> {
         .ligands
         .iter()
         .filter_map(|l| Some((l.ligand.as_str(), l.measured?, l.dg, l.sigma)))
+        .filter(|p| p.1.is_finite() && p.2.is_finite())
         .collect();
     if pts.is_empty() {
         return Ok(None);

@@ -288,8 +288,8 @@ fn checkpoint_interval_and_restart_do_not_change_the_bytes() {
         "{out:?}"
     );
     assert_eq!(std::fs::read(&cfg.output).unwrap(), clean);
-    // Running again once complete changes nothing.
-    cfg.attempt = 3;
+    // Running again once complete changes nothing, faults or not.
+    cfg.attempt = 1;
     assert!(matches!(
         run(&cfg).unwrap(),
         RunOutcome::Completed { written: 0, .. }
@@ -835,25 +835,9 @@ fn the_scenario_spans_about_four_kcal_per_mol() {
     );
 }
 
-/// `shell_quote` as the render module documents it: POSIX single quotes. Here only so
-/// that the demo templates can be rendered without the campaign machinery.
-fn shell_quote(
-    v: &tera::Value,
-    _: &std::collections::HashMap<String, tera::Value>,
-) -> tera::Result<tera::Value> {
-    let s = match v {
-        tera::Value::String(s) => s.clone(),
-        other => other.to_string(),
-    };
-    Ok(tera::Value::String(format!(
-        "'{}'",
-        s.replace('\'', r"'\''")
-    )))
-}
-
 fn render(template: &str, ctx: &serde_json::Value) -> String {
     let mut t = tera::Tera::default();
-    t.register_filter("shell_quote", shell_quote);
+    legwork::render::register_filters(&mut t);
     let src =
         std::fs::read_to_string(Path::new(ROOT).join("templates/demo").join(template)).unwrap();
     t.add_raw_template(template, &src).unwrap();
@@ -937,7 +921,7 @@ fn the_demo_stage_templates_run_the_engine() {
     );
     let prod = stage_context(&root, "production", Some(7), serde_json::json!({}));
     let script = render("production.sh.tera", &prod);
-    assert!(script.contains("--fault-fail-probability '0'"));
+    assert!(script.contains("--fault-fail-probability 0 "));
     assert!(!script.contains("--fault-truncate") && !script.contains("--fault-signal"));
     let out = bash(&script, tmp.path());
     assert!(
@@ -981,12 +965,12 @@ fn the_production_template_wires_the_fault_vars() {
         &stage_context(&root, "production", Some(0), vars),
     );
     for flag in [
-        "--fault-fail-after '300'",
+        "--fault-fail-after 300",
         "--fault-truncate",
-        "--fault-signal 'TERM'",
-        "--fault-hang-attempt '4'",
-        "--fault-fail-probability '0.25'",
-        "--fault-attempts '2'",
+        "--fault-signal TERM",
+        "--fault-hang-attempt 4",
+        "--fault-fail-probability 0.25",
+        "--fault-attempts 2",
     ] {
         assert!(script.contains(flag), "{flag} missing in\n{script}");
     }
@@ -1002,4 +986,90 @@ fn the_production_template_wires_the_fault_vars() {
         "{}",
         String::from_utf8_lossy(&out.stderr)
     );
+}
+
+#[test]
+fn the_demo_campaign_checks_expands_and_one_window_runs() {
+    let legwork = env!("CARGO_BIN_EXE_legwork");
+    let campaign = Path::new(ROOT).join("campaigns/demo.yaml");
+    let check = Command::new(legwork)
+        .arg("check")
+        .arg(&campaign)
+        .output()
+        .unwrap();
+    assert!(
+        check.status.success(),
+        "{}",
+        String::from_utf8_lossy(&check.stderr)
+    );
+    let tmp = tempfile::tempdir().unwrap();
+    let root = tmp.path().join("tree");
+    let expand = Command::new(legwork)
+        .arg("expand")
+        .arg(&campaign)
+        .arg("--root")
+        .arg(&root)
+        .arg("-q")
+        .output()
+        .unwrap();
+    assert!(
+        expand.status.success(),
+        "{}",
+        String::from_utf8_lossy(&expand.stderr)
+    );
+    let leg = root.join("ork-07~ork-08/solvent/r1");
+    for script in [
+        leg.join("prepare/task.sh"),
+        leg.join("w11/production/task.sh"),
+    ] {
+        let out = Command::new("bash").arg(&script).output().unwrap();
+        assert!(
+            out.status.success(),
+            "{}: {}",
+            script.display(),
+            String::from_utf8_lossy(&out.stderr)
+        );
+    }
+    let table = leg.join("w11/production/window.tsv");
+    let text = std::fs::read_to_string(&table).unwrap();
+    assert!(text.contains("# state: 11\n") && text.contains("# energy_unit: kcal/mol\n"));
+    assert_eq!(rows(&table).len(), 2000);
+    assert_eq!(rows(&table)[0].len(), 14);
+    // State 11 is λ = 1: u11 is ligand ork-08's solvent well, c = −0.5 plus a non-negative term.
+    assert!(rows(&table).iter().all(|r| r[13] >= -0.5));
+}
+
+#[test]
+fn a_damaged_checkpoint_means_starting_over() {
+    let dir = tempfile::tempdir().unwrap();
+    let mut cfg = config(dir.path(), unequal(), vec![0.0, 1.0], 1, 300);
+    let clean = fresh_run(dir.path(), &cfg);
+    cfg.faults.fail_after = Some(150);
+    run(&cfg).unwrap();
+    std::fs::write(cfg.checkpoint.as_ref().unwrap(), "{\"format\": trunc").unwrap();
+    cfg.attempt = 2;
+    match run(&cfg).unwrap() {
+        RunOutcome::Completed {
+            resumed_from: None,
+            notes,
+            ..
+        } => assert!(notes[0].contains("starting the window over"), "{notes:?}"),
+        other => panic!("{other:?}"),
+    }
+    assert_eq!(std::fs::read(&cfg.output).unwrap(), clean);
+}
+
+#[test]
+fn the_time_column_counts_frames_in_time_steps() {
+    let dir = tempfile::tempdir().unwrap();
+    let mut cfg = config(dir.path(), unequal(), vec![0.0, 1.0], 0, 5);
+    cfg.time_step = 0.1;
+    run(&cfg).unwrap();
+    let text = std::fs::read_to_string(&cfg.output).unwrap();
+    let times: Vec<&str> = text
+        .lines()
+        .skip(6)
+        .map(|l| l.split('\t').next().unwrap())
+        .collect();
+    assert_eq!(times, ["0", "0.1", "0.2", "0.3", "0.4"]);
 }

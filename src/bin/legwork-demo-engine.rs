@@ -319,9 +319,7 @@ fn do_prepare(a: PrepareArgs) -> Result<ExitCode, DemoError> {
         shift: a.a_shift,
     };
     let sys = ToySystem::new(well, well, a.dimensions, a.temperature)?;
-    let w = a.displace * sys.sigma(0.0);
-    let mut x = vec![w; a.dimensions];
-    x[0] += a.a_shift;
+    let x = start::displaced(a.a_shift, sys.sigma(0.0), a.dimensions, a.displace);
     start::write(&a.output, &x)?;
     Ok(ExitCode::SUCCESS)
 }

@@ -53,11 +53,8 @@ impl Checkpoint {
             line: 0,
             message,
         };
-        let ck: Checkpoint = serde_json::from_str(&text).map_err(|e| {
-            bad(format!(
-                "not a readable demo checkpoint ({e}); delete it to start the window over"
-            ))
-        })?;
+        let ck: Checkpoint = serde_json::from_str(&text)
+            .map_err(|e| bad(format!("not a readable demo checkpoint ({e})")))?;
         if ck.format != FORMAT {
             return Err(bad(format!(
                 "unknown checkpoint format '{}', expected '{FORMAT}'",
@@ -81,7 +78,11 @@ impl Checkpoint {
 }
 
 /// Writes `bytes` to `path` so that readers see either the old file or the whole new
-/// one: a temporary file beside it, fsync, rename.
+/// one: a temporary file beside it, then rename. No fsync: the rename already protects
+/// against the process dying at any point (a crash, a walltime kill), and a checkpoint
+/// damaged by a machine crash is set aside by [`crate::demo::run::run`], because starting
+/// the window over gives the same bytes. Several fsyncs per window would cost more
+/// than the whole run.
 pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<(), DemoError> {
     let mut tmp = path.as_os_str().to_owned();
     tmp.push(".tmp");
@@ -89,7 +90,6 @@ pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<(), DemoError> {
     let result = (|| {
         let mut f = std::fs::File::create(&tmp)?;
         f.write_all(bytes)?;
-        f.sync_all()?;
         std::fs::rename(&tmp, path)
     })();
     result.map_err(|e| {

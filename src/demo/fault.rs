@@ -60,8 +60,12 @@ impl Faults {
     }
 
     /// Resolves the faults for `attempt` of a run seeded `seed` that has `remaining`
-    /// frames left to write. The earliest stop wins.
+    /// frames left to write. The earliest stop wins; a finished window gets no faults.
     pub fn plan(&self, seed: u64, attempt: u32, remaining: u64) -> FaultPlan {
+        if remaining == 0 {
+            // A finished window has nothing left to break.
+            return FaultPlan::default();
+        }
         let deterministic = attempt <= self.attempts;
         let half = remaining / 2;
         let mut stops: Vec<(u64, FaultAction)> = Vec::new();

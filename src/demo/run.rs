@@ -142,10 +142,8 @@ impl RunConfig {
             Some(s) => s.clone(),
             None => {
                 let lam = self.lambdas[self.state];
-                let w = self.displace * self.system.sigma(lam);
-                let mut x = vec![w; self.system.dimensions];
-                x[0] += self.system.center(lam);
-                x
+                let s = &self.system;
+                super::start::displaced(s.center(lam), s.sigma(lam), s.dimensions, self.displace)
             }
         }
     }
@@ -195,6 +193,11 @@ impl Output {
     }
 }
 
+/// The time of a frame, rounded to 1e-6 ps so that e.g. 3 × 0.1 prints as 0.3.
+fn frame_time(frame: u64, time_step: f64) -> f64 {
+    (frame as f64 * time_step * 1e6).round() / 1e6
+}
+
 /// Runs one window. Resumes from the checkpoint when one exists (and matches these
 /// parameters); otherwise starts over and overwrites the output.
 pub fn run(cfg: &RunConfig) -> Result<RunOutcome, DemoError> {
@@ -204,7 +207,14 @@ pub fn run(cfg: &RunConfig) -> Result<RunOutcome, DemoError> {
     let mut notes = Vec::new();
 
     let resume = match &cfg.checkpoint {
-        Some(p) => match Checkpoint::load(p)? {
+        Some(p) => match Checkpoint::load(p).or_else(|e| match e {
+            // Starting over gives the same bytes, so a damaged checkpoint costs only time.
+            DemoError::Format { .. } => {
+                notes.push(format!("{e}; starting the window over"));
+                Ok(None)
+            }
+            other => Err(other),
+        })? {
             Some(ck) => {
                 if ck.fingerprint != fingerprint {
                     return Err(DemoError::CheckpointMismatch {
@@ -315,7 +325,7 @@ pub fn run(cfg: &RunConfig) -> Result<RunOutcome, DemoError> {
         line.clear();
         table::push_row(
             &mut line,
-            frame as f64 * cfg.time_step,
+            frame_time(frame, cfg.time_step),
             (ub - ua) * scale,
             cfg.lambdas
                 .iter()

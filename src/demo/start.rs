@@ -15,6 +15,14 @@ use std::path::Path;
 
 const MAGIC: &str = "# legwork demo start 1";
 
+/// A configuration `displace` thermal widths `sigma` away from a well centred at
+/// `center` on the first axis, along every one of `dimensions` axes.
+pub fn displaced(center: f64, sigma: f64, dimensions: usize, displace: f64) -> Vec<f64> {
+    let mut x = vec![displace * sigma; dimensions];
+    x[0] += center;
+    x
+}
+
 /// Renders a starting configuration.
 pub fn render(position: &[f64]) -> String {
     let coords: Vec<String> = position.iter().map(|x| format!("{x}")).collect();

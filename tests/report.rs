@@ -82,6 +82,12 @@ fn tables_have_the_agreed_columns_and_values() {
     let dgs: Vec<f64> = rows.iter().map(|x| num(x, "dg")).collect();
     assert!(dgs.windows(2).all(|w| w[0] <= w[1]), "{dgs:?}");
     assert_eq!(rows[0]["rank"], "1");
+    let centred: f64 = rows.iter().map(|x| num(x, "dg_minus_mean")).sum();
+    assert!(centred.abs() < 1e-5, "dg_minus_mean sums to {centred}");
+    for x in &rows {
+        let shift = num(x, "dg") - num(x, "dg_minus_mean");
+        assert!((shift - num(&rows[0], "dg") + num(&rows[0], "dg_minus_mean")).abs() < 1e-5);
+    }
 
     // legs.csv: one row per leg replica, a column pair per estimator.
     let (h, rows) = read_csv(&dir.path().join("results/legs.csv"));

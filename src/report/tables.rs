@@ -142,11 +142,23 @@ pub fn ligands_csv(r: &Results) -> String {
         "ligand",
         "dg",
         "sigma",
+        "dg_minus_mean",
         "measured",
         "rank",
         "component",
         "unit",
     ]);
+    // ΔG relative to the mean of its connected part: independent of how the
+    // offset was fixed, so comparable with any other gauge.
+    let mean_of = |c: usize| {
+        let v: Vec<f64> = r
+            .ligands
+            .iter()
+            .filter(|l| l.component == c && l.dg.is_finite())
+            .map(|l| l.dg)
+            .collect();
+        v.iter().sum::<f64>() / v.len().max(1) as f64
+    };
     let rows = r
         .ranked_ligands()
         .iter()
@@ -156,6 +168,7 @@ pub fn ligands_csv(r: &Results) -> String {
                 l.ligand.clone(),
                 num(l.dg),
                 num(l.sigma),
+                num(l.dg - mean_of(l.component)),
                 opt(l.measured),
                 (i + 1).to_string(),
                 l.component.to_string(),

@@ -292,3 +292,47 @@ fn residuals_satisfy_the_normal_equations() {
         assert_eq!(fit.dof, edges.len() - 9 + 1);
     }
 }
+
+#[test]
+fn exact_demo_edges_reproduce_the_exact_demo_ligands() {
+    // The demo engine's analytic answers (demo-data/exact.csv per edge,
+    // exact-ligands.csv per ligand relative to the series mean) form a perfectly
+    // consistent network: the solve must return them, with zero closure.
+    let root = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("demo-data");
+    let mut edges = Vec::new();
+    for rec in csv::Reader::from_path(root.join("exact.csv"))
+        .unwrap()
+        .records()
+    {
+        let rec = rec.unwrap();
+        edges.push(NetworkEdge {
+            a: rec[0].to_string(),
+            b: rec[1].to_string(),
+            ddg: rec[2].parse().unwrap(),
+            sigma: 0.05,
+        });
+    }
+    let fit = solve(&edges, &[], None).unwrap();
+    assert_eq!(fit.cycles.len(), edges.len() - fit.ligands.len() + 1);
+    for c in &fit.cycles {
+        // exact.csv is printed to 6 decimals, so closures are zero to rounding.
+        assert!(c.closure.abs() < 5e-6, "{c:?}");
+    }
+    let mut n = 0;
+    for rec in csv::Reader::from_path(root.join("exact-ligands.csv"))
+        .unwrap()
+        .records()
+    {
+        let rec = rec.unwrap();
+        let exact: f64 = rec[1].parse().unwrap();
+        let l = fit.ligands.iter().find(|l| l.ligand == rec[0]).unwrap();
+        assert!(
+            (l.dg - exact).abs() < 5e-6,
+            "{}: {} vs exact {exact}",
+            l.ligand,
+            l.dg
+        );
+        n += 1;
+    }
+    assert_eq!(n, fit.ligands.len());
+}

@@ -21,7 +21,8 @@ pub struct Results {
     pub kind: CampaignKind,
     /// The campaign unit every energy below is in.
     pub unit: EnergyUnit,
-    /// Temperature, K.
+    /// Temperature, K (spelled `temperature_K` as in the campaign file).
+    #[serde(rename = "temperature_K")]
     pub temperature_k: f64,
     /// Name of the headline estimator (e.g. `mbar`).
     pub estimator: String,

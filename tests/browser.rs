@@ -6,6 +6,7 @@
 #[path = "report_fixture.rs"]
 mod fixture;
 
+use std::io::Write;
 use std::path::{Path, PathBuf};
 use std::process::Command;
 
@@ -48,13 +49,12 @@ fn load(chrome: &Path, page: &Path, png: &Path, profile: &Path) -> String {
 }
 
 /// Lines of Chromium's log that report a page console message or a failed load.
+/// (Browser-internal noise such as D-Bus or GPU messages is not the page's and
+/// is ignored; a failed resource load of the page is logged as CONSOLE.)
 fn console_errors(log: &str) -> Vec<&str> {
     log.lines()
         .filter(|l| {
-            l.contains("CONSOLE")
-                || l.contains("Uncaught")
-                || l.contains("Failed to load resource")
-                || l.contains("net::ERR_")
+            l.contains("CONSOLE") || l.contains("Uncaught") || l.contains("Failed to load resource")
         })
         .collect()
 }
@@ -62,7 +62,10 @@ fn console_errors(log: &str) -> Vec<&str> {
 #[test]
 fn report_loads_in_headless_chromium_without_errors_and_is_not_blank() {
     let Some(chrome) = chromium() else {
-        eprintln!("SKIPPED: browser test: /usr/bin/chromium not found (run tests/setup/packages.sh as root, or apt-get install chromium)");
+        // Straight to the stderr handle: the test harness captures eprintln!, and a
+        // skip must be seen.
+        let line = "SKIPPED: browser test: /usr/bin/chromium not found (run tests/setup/packages.sh as root, or apt-get install chromium)";
+        let _ = std::io::stderr().write_all(format!("{line}\n").as_bytes());
         return;
     };
     let dir = PathBuf::from(env!("CARGO_TARGET_TMPDIR")).join("browser-report");

@@ -106,3 +106,16 @@ fn missing_file_is_an_error_naming_it() {
     .unwrap_err();
     assert!(err.to_string().contains("/nonexistent/measured.csv"));
 }
+
+#[test]
+fn reads_the_demo_measurements() {
+    let path = std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("demo-data/measured.csv");
+    let m = read_measured(&path, T, EnergyUnit::KcalPerMol).unwrap();
+    assert_eq!(m.len(), 8);
+    assert_eq!(m[0].ligand, "ork-01");
+    assert_eq!(m[0].line, 6, "four comment lines and the header come first");
+    assert!(m.iter().any(|x| x.kind == MeasuredKind::Ki));
+    // The file says its values scatter around −9 kcal/mol.
+    let mean = m.iter().map(|x| x.dg).sum::<f64>() / 8.0;
+    assert!((mean - (-9.0)).abs() < 1.0, "{mean}");
+}

@@ -82,6 +82,12 @@ fn tables_have_the_agreed_columns_and_values() {
     let dgs: Vec<f64> = rows.iter().map(|x| num(x, "dg")).collect();
     assert!(dgs.windows(2).all(|w| w[0] <= w[1]), "{dgs:?}");
     assert_eq!(rows[0]["rank"], "1");
+    let centred: f64 = rows.iter().map(|x| num(x, "dg_minus_mean")).sum();
+    assert!(centred.abs() < 1e-5, "dg_minus_mean sums to {centred}");
+    for x in &rows {
+        let shift = num(x, "dg") - num(x, "dg_minus_mean");
+        assert!((shift - num(&rows[0], "dg") + num(&rows[0], "dg_minus_mean")).abs() < 1e-5);
+    }
 
     // legs.csv: one row per leg replica, a column pair per estimator.
     let (h, rows) = read_csv(&dir.path().join("results/legs.csv"));
@@ -152,6 +158,11 @@ fn html_is_one_self_contained_file_with_plots_and_cautions() {
     assert!(html.contains("±1 and ±2 kcal/mol"));
     assert!(html.contains("TI area"));
     assert!(html.contains("Forward and reverse convergence"));
+    // A leg with two λ components gets one dU/dλ series (and legend entry) each.
+    assert!(
+        html.contains(">\ncharge\n</text>") && html.contains(">\nvdw\n</text>"),
+        "component legend missing"
+    );
     // The cautions paragraph.
     assert!(html.contains("id=\"cautions\""));
     assert!(html.contains("not measurements"));
@@ -363,4 +374,92 @@ fn absolute_campaign_reports_one_cycle_per_ligand_with_the_restraint_correction(
         "no network for absolute campaigns"
     );
     assert!(html.contains("Cycles per ligand"));
+}
+
+#[test]
+fn ti_area_sums_over_lambda_components() {
+    use legwork::report::plots::trapezoid;
+    use legwork::report::WindowSummary;
+    // Trapezoid rule by hand: component a, λ 0 → 1 with dU/dλ 2 → 4: area 3;
+    // component b, λ 0 → 0.5 → 1 with 1, 1, 3: 0.5 + 1 = 1.5. Total 4.5.
+    let w = |c: &str, lambda: f64, dudl_mean: f64| WindowSummary {
+        lambda,
+        component: Some(c.into()),
+        dudl_mean,
+        dudl_sem: 0.1,
+        frames: None,
+        discarded: None,
+        inefficiency: None,
+    };
+    let ws = [
+        w("a", 0.0, 2.0),
+        w("a", 1.0, 4.0),
+        w("b", 0.0, 1.0),
+        w("b", 0.5, 1.0),
+        w("b", 1.0, 3.0),
+    ];
+    assert!((trapezoid(&ws) - 4.5).abs() < 1e-12);
+}
+
+#[test]
+fn a_failed_write_leaves_nothing_half_written() {
+    let dir = tempfile::tempdir().unwrap();
+    // report/ cannot be created because a file is in the way.
+    std::fs::write(dir.path().join("report"), "in the way").unwrap();
+    let err = write_all(dir.path(), &fixture::results()).unwrap_err();
+    assert!(err.to_string().contains("index.html"), "{err}");
+    let left: Vec<_> = std::fs::read_dir(dir.path().join("results"))
+        .map(|d| d.map(|e| e.unwrap().file_name()).collect())
+        .unwrap_or_default();
+    assert!(left.is_empty(), "files left behind: {left:?}");
+}
+
+#[test]
+fn legwork_report_finds_the_root_from_the_campaign_file() {
+    // The root defaults to a folder named after the campaign beside its file.
+    let dir = tempfile::tempdir().unwrap();
+    let src = Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/fixtures/campaigns/basic");
+    for entry in walkdir::WalkDir::new(&src) {
+        let entry = entry.unwrap();
+        let to = dir.path().join(entry.path().strip_prefix(&src).unwrap());
+        if entry.file_type().is_dir() {
+            std::fs::create_dir_all(&to).unwrap();
+        } else {
+            std::fs::copy(entry.path(), &to).unwrap();
+        }
+    }
+    let file = dir.path().join("campaign.yaml");
+    let loaded = legwork::campaign::load(&file, &Default::default()).unwrap();
+    write_all(&loaded.campaign.root, &fixture::results()).unwrap();
+    std::fs::remove_file(loaded.campaign.root.join("report/index.html")).unwrap();
+    Command::cargo_bin("legwork")
+        .unwrap()
+        .args(["report", file.to_str().unwrap()])
+        .assert()
+        .success();
+    assert!(loaded.campaign.root.join("report/index.html").is_file());
+}
+
+#[test]
+fn odd_inputs_still_render() {
+    // Undefined numbers, a ragged overlap matrix, mismatched convergence series
+    // and no measurements at all must not stop the page from being written.
+    let mut r = fixture::results();
+    r.ligands[0].dg = f64::NAN;
+    r.legs[0].overlap.pop();
+    r.legs[0].windows[3].lambda = f64::NAN;
+    if let Some(c) = r.legs[1].convergence.as_mut() {
+        c.reverse.truncate(3);
+        c.forward_sigma.clear();
+    }
+    let dir = tempfile::tempdir().unwrap();
+    write_all(dir.path(), &r).unwrap();
+    r.measured.clear();
+    r.statistics = None;
+    for l in &mut r.ligands {
+        l.measured = None;
+    }
+    write_all(dir.path(), &r).unwrap();
+    let html = std::fs::read_to_string(dir.path().join("report/index.html")).unwrap();
+    assert!(html.contains("No measured values"));
 }

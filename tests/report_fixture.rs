@@ -59,18 +59,29 @@ fn leg(
 ) -> LegReplica {
     let k = 12;
     let sigma = 0.12 + 0.04 * rng.gen::<f64>();
-    let windows: Vec<WindowSummary> = lambdas(k)
-        .into_iter()
-        .map(|l| WindowSummary {
-            lambda: l,
-            // ∫₀¹ cos(πλ) dλ = 0, so the TI area stays close to dg.
-            dudl_mean: dg + 9.0 * (PI * l).cos() + 0.3 * (rng.gen::<f64>() - 0.5),
-            dudl_sem: 0.2 + 0.3 * rng.gen::<f64>(),
-            frames: Some(2000),
-            discarded: Some(rng.gen_range(20..200)),
-            inefficiency: Some(3.0 + 4.0 * rng.gen::<f64>()),
-        })
-        .collect();
+    // The chord edge's legs have two λ components (charge, then van der Waals);
+    // the others one. Either way ∫ cos(πλ) dλ = 0 keeps the TI area near dg.
+    let components: &[(Option<&str>, f64)] = if subject == "ork-01~ork-04" {
+        &[(Some("charge"), 0.3), (Some("vdw"), 0.7)]
+    } else {
+        &[(None, 1.0)]
+    };
+    let mut windows = Vec::new();
+    for &(component, share) in components {
+        for l in lambdas(k) {
+            windows.push(WindowSummary {
+                lambda: l,
+                component: component.map(str::to_string),
+                dudl_mean: share * dg
+                    + 9.0 * share * (PI * l).cos()
+                    + 0.3 * (rng.gen::<f64>() - 0.5),
+                dudl_sem: 0.2 + 0.3 * rng.gen::<f64>(),
+                frames: Some(2000),
+                discarded: Some(rng.gen_range(20..200)),
+                inefficiency: Some(3.0 + 4.0 * rng.gen::<f64>()),
+            });
+        }
+    }
     let mut overlap = vec![vec![0.0; k]; k];
     for (i, row) in overlap.iter_mut().enumerate() {
         let raw: Vec<f64> = (0..k)

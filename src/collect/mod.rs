@@ -31,11 +31,29 @@ pub fn read_window_with(
     config: &ReaderConfig,
     hint: &WindowHint,
 ) -> Result<WindowSamples, ReadError> {
-    let text = std::fs::read(path).map_err(|source| ReadError::Io {
-        path: path.to_path_buf(),
-        source,
-    })?;
-    parse_window(path, &text, config, hint)
+    thread_local! {
+        // One text buffer per reading thread, reused from file to file: fresh
+        // buffers for every file would cost a page fault per 4 KiB read.
+        static TEXT: std::cell::RefCell<Vec<u8>> = const { std::cell::RefCell::new(Vec::new()) };
+    }
+    TEXT.with(|cell| {
+        let mut text = cell.borrow_mut();
+        text.clear();
+        let io = |source| ReadError::Io {
+            path: path.to_path_buf(),
+            source,
+        };
+        let mut file = std::fs::File::open(path).map_err(io)?;
+        if let Ok(meta) = file.metadata() {
+            text.reserve(meta.len() as usize);
+        }
+        std::io::Read::read_to_end(&mut file, &mut text).map_err(io)?;
+        let out = parse_window(path, &text, config, hint);
+        if text.capacity() > 256 << 20 {
+            *text = Vec::new();
+        }
+        out
+    })
 }
 
 /// Parses one window's output already in memory (`path` is used in messages).

@@ -104,10 +104,11 @@ pub fn run(args: Args, _global: &Global) -> anyhow::Result<()> {
         .map_err(|e| Exit::bad_input(format!("cannot estimate this leg: {e}")))?;
     if let Some(m) = &est.mbar {
         tracing::info!(
-            "read {:.3} s; MBAR solve {:.4} s in {} iterations",
+            "read {:.3} s; MBAR solve {:.4} s in {} iterations, {} passes over the samples",
             read_s,
             m.solve_seconds,
-            m.iterations
+            m.iterations,
+            crate::estimate::mbar::PASSES.load(std::sync::atomic::Ordering::Relaxed)
         );
     }
     if args.json {

@@ -13,7 +13,7 @@ mod replicas;
 
 pub use boresch::{BoreschRestraint, STANDARD_VOLUME_A3};
 pub use edge::{
-    combine_edge, CampaignKind, Correction, CycleError, EdgeFlag, EdgeResult, LegSpec, LegValue,
-    ReplicaValue,
+    combine_edge, CampaignKind, CombinedLeg, Correction, CycleError, EdgeFlag, EdgeResult, LegSpec,
+    LegValue, ReplicaValue,
 };
 pub use replicas::{combine_replicas, ReplicaCombination};

@@ -2,16 +2,24 @@
 //! pair of states.
 
 use super::error::EstimateError;
+use super::fastexp::exp_nonpos;
 
 /// Fermi function 1/(1 + e^x), written to stay finite for any x.
 #[inline]
 fn fermi(x: f64) -> f64 {
+    let e = exp_nonpos(-x.abs());
     if x > 0.0 {
-        let e = (-x).exp();
         e / (1.0 + e)
     } else {
-        1.0 / (1.0 + x.exp())
+        1.0 / (1.0 + e)
     }
+}
+
+/// 1/(2 + 2 cosh x) = f(x)(1 − f(x)) = e^{−|x|}/(1 + e^{−|x|})², without overflow.
+#[inline]
+fn sech2_quarter(x: f64) -> f64 {
+    let e = exp_nonpos(-x.abs());
+    e / ((1.0 + e) * (1.0 + e))
 }
 
 /// Reduced ΔF = f_1 − f_0 from forward works `wf` = u_1 − u_0 on samples of state 0
@@ -21,6 +29,13 @@ fn fermi(x: f64) -> f64 {
 /// error (Shirts et al. 2003, Phys. Rev. Lett. 91, 140601, Eq. 10, the
 /// maximum-likelihood form of Bennett's variance).
 pub fn bar(wf: &[f64], wr: &[f64]) -> Result<(f64, f64), EstimateError> {
+    let x = bar_solve(wf, wr, 1e-13)?;
+    Ok((x, bar_sigma(wf, wr, x)))
+}
+
+/// ΔF of Bennett's equation to a relative tolerance `tol`, without the variance (a
+/// cheap starting point for MBAR needs no more than 1e-7).
+pub fn bar_solve(wf: &[f64], wr: &[f64], tol: f64) -> Result<f64, EstimateError> {
     let (nf, nr) = (wf.len() as f64, wr.len() as f64);
     if wf.len() < 2 || wr.len() < 2 {
         return Err(EstimateError::Insufficient(format!(
@@ -52,59 +67,63 @@ pub fn bar(wf: &[f64], wr: &[f64]) -> Result<(f64, f64), EstimateError> {
     if !x.is_finite() {
         x = 0.0;
     }
-    let (mut lo, mut hi) = (x - 1.0, x + 1.0);
-    let mut step = 1.0;
-    while h(lo).0 > 0.0 {
-        step *= 2.0;
-        lo -= step;
-        if step > 1e6 {
-            return Err(EstimateError::NotConverged(
-                "BAR: no bracket for ΔF (the two states do not overlap at all)".into(),
-            ));
-        }
-    }
-    step = 1.0;
-    while h(hi).0 < 0.0 {
-        step *= 2.0;
-        hi += step;
-        if step > 1e6 {
-            return Err(EstimateError::NotConverged(
-                "BAR: no bracket for ΔF (the two states do not overlap at all)".into(),
-            ));
-        }
-    }
-    x = x.clamp(lo, hi);
+    // Newton from the EXP start, steps capped at 4 kT; the bracket [lo, hi] is
+    // learnt from the signs seen and bisected whenever Newton would leave it.
+    let (mut lo, mut hi) = (f64::NEG_INFINITY, f64::INFINITY);
     let mut converged = false;
-    for _ in 0..200 {
+    for _ in 0..300 {
         let (v, d) = h(x);
         if v > 0.0 {
             hi = x;
         } else {
             lo = x;
         }
-        let mut next = if d > 0.0 { x - v / d } else { f64::NAN };
+        let newton = if d > 0.0 { x - v / d } else { f64::NAN };
+        let mut next = if newton.is_finite() {
+            x + (newton - x).clamp(-4.0, 4.0)
+        } else if v > 0.0 {
+            x - 4.0
+        } else {
+            x + 4.0
+        };
         if !(next > lo && next < hi) {
-            next = 0.5 * (lo + hi);
+            next = if lo.is_finite() && hi.is_finite() {
+                0.5 * (lo + hi)
+            } else if v > 0.0 {
+                x - 4.0
+            } else {
+                x + 4.0
+            };
         }
-        if (next - x).abs() < 1e-13 * (1.0 + x.abs()) || hi - lo < 1e-13 * (1.0 + x.abs()) {
+        if (next - x).abs() < tol * (1.0 + x.abs()) || hi - lo < tol * (1.0 + x.abs()) {
             x = next;
             converged = true;
+            break;
+        }
+        if x.abs() > 1e6 {
             break;
         }
         x = next;
     }
     if !converged {
         return Err(EstimateError::NotConverged(
-            "BAR: the self-consistent iteration did not converge".into(),
+            "BAR: the self-consistent iteration did not converge (do the two states overlap at all?)".into(),
         ));
     }
+    Ok(x)
+}
+
+/// The asymptotic standard error of BAR's ΔF = `x` (see [`bar`]).
+fn bar_sigma(wf: &[f64], wr: &[f64], x: f64) -> f64 {
+    let (nf, nr) = (wf.len() as f64, wr.len() as f64);
+    let m = (nf / nr).ln();
     let n = nf + nr;
     let mut acc = 0.0;
     for &w in wf {
-        acc += 1.0 / (2.0 + 2.0 * (m + w - x).cosh());
+        acc += sech2_quarter(m + w - x);
     }
     for &w in wr {
-        acc += 1.0 / (2.0 + 2.0 * (m - w - x).cosh());
+        acc += sech2_quarter(m - w - x);
     }
     let mean = acc / n;
     let mut var = (1.0 / mean - (n / nf + n / nr)) / n;
@@ -125,7 +144,7 @@ pub fn bar(wf: &[f64], wr: &[f64]) -> Result<(f64, f64), EstimateError> {
         let (f1, f2, r1, r2) = (f1 / nf, f2 / nf, r1 / nr, r2 / nr);
         var = (f2 / (f1 * f1) - 1.0) / nf + (r2 / (r1 * r1) - 1.0) / nr;
     }
-    Ok((x, var.max(0.0).sqrt()))
+    var.max(0.0).sqrt()
 }
 
 /// Each sample's first-order influence on the BAR estimate `df` of one pair (the

@@ -1,6 +1,7 @@
 //! Exponential averaging (Zwanzig 1954, J. Chem. Phys. 22, 1420).
 
 use super::error::EstimateError;
+use super::fastexp::exp_nonpos;
 
 /// Reduced free-energy difference ΔF = −ln ⟨e^{−w}⟩ from work values
 /// w = u_target − u_sampled over samples of the sampled state, and its standard
@@ -14,7 +15,7 @@ pub fn exp_average(w: &[f64]) -> Result<(f64, f64), EstimateError> {
         )));
     }
     let m = w.iter().map(|v| -v).fold(f64::NEG_INFINITY, f64::max);
-    let e: Vec<f64> = w.iter().map(|v| (-v - m).exp()).collect();
+    let e: Vec<f64> = w.iter().map(|v| exp_nonpos(-v - m)).collect();
     let mean = e.iter().sum::<f64>() / n as f64;
     let var = e.iter().map(|x| (x - mean) * (x - mean)).sum::<f64>() / (n - 1) as f64;
     let df = -(m + mean.ln());

@@ -8,7 +8,7 @@ const LN2_LO: f64 = 1.908_214_929_270_587_7e-10; // bits 0x3dea39ef35793c76
                                                  // 1.5·2^52: adding it rounds to an integer held in the low mantissa bits.
 const SHIFT: f64 = 6_755_399_441_055_744.0;
 
-/// e^x for x ≤ 0, relative error below 1e-15; arguments below −708 give ~1e-308
+/// e^x for x ≤ 0 (and −∞), relative error below 1e-15; arguments below −708 give ~1e-308
 /// (such weights are negligible next to the largest, which is e^0 = 1).
 #[inline(always)]
 pub fn exp_nonpos(x: f64) -> f64 {

@@ -1,7 +1,7 @@
 //! One leg from its windows: equilibration and decorrelation per window, every
 //! estimator asked for, overlap, convergence and warnings.
 
-use super::bar::{bar, bar_influence};
+use super::bar::{bar, bar_influence, bar_solve};
 use super::correlation::{
     at_start, detect_equilibration, statistical_inefficiency, subsample, Equilibrated,
 };
@@ -174,8 +174,7 @@ pub fn estimate_leg(
         .collect();
     let mut ti_points = Vec::new();
 
-    let want_bar = methods.contains(&Method::Bar) || methods.contains(&Method::Mbar);
-    let bar_pairs = if want_bar {
+    let bar_pairs = if methods.contains(&Method::Bar) {
         Some(bar_pairs(leg, &used, &resid)?)
     } else {
         None
@@ -215,13 +214,25 @@ pub fn estimate_leg(
 
     // MBAR always runs: it gives the overlap matrix even when not asked for.
     let t0 = Instant::now();
-    let init = bar_pairs.as_ref().map(|p| {
-        let mut f = vec![0.0];
-        for d in p {
-            f.push(f.last().expect("non-empty") + d.delta_g);
-        }
-        f
-    });
+    // MBAR starts from the running sum of BAR over adjacent pairs (loosely
+    // converged when BAR itself was not asked for): near the solution, Newton
+    // needs two or three passes over the samples.
+    let steps: Vec<f64> = match &bar_pairs {
+        Some(p) => p.iter().map(|d| d.delta_g).collect(),
+        None => (0..k - 1)
+            .into_par_iter()
+            .map(|i| {
+                let wf = works(&leg.windows[i], used[i], i + 1);
+                let wr = works(&leg.windows[i + 1], used[i + 1], i);
+                bar_solve(&wf, &wr, 1e-7).unwrap_or(0.0)
+            })
+            .collect(),
+    };
+    let mut start = vec![0.0];
+    for d in steps {
+        start.push(start.last().expect("non-empty") + d);
+    }
+    let init = Some(start);
     let sol = mbar(leg, &used, &resid, init)?;
     let solve_seconds = t0.elapsed().as_secs_f64();
     let (d, s) = sol.difference(0, k - 1);

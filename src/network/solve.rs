@@ -148,7 +148,8 @@ pub enum NetworkError {
 /// campaign unit), the `reference` ligand at ΔG = 0, or a zero series mean.
 /// The covariance is the inverse of the normal matrix with one ligand per
 /// component held fixed, then carried through the offset: for an offset
-/// G′ = (I − 1cᵀ) G + const, Cov′ = (I − 1cᵀ) Cov (I − 1cᵀ)ᵀ.
+/// G′ = (I − 1cᵀ) G + const, Cov′ = (I − 1cᵀ) Cov (I − 1cᵀ)ᵀ. Measured values
+/// enter only through that constant; their own errors are not propagated.
 pub fn solve(
     edges: &[NetworkEdge],
     measured: &[Measured],
@@ -378,7 +379,15 @@ pub fn annotate_edges(edges: &mut [EdgeResult], fit: &NetworkResult) {
             .edges
             .get(i)
             .filter(|f| f.a == e.ligand_a && f.b == b && f.ddg == e.ddg)
-            .or_else(|| fit.edges.iter().find(|f| f.a == e.ligand_a && f.b == b));
+            .or_else(|| {
+                let same = |f: &&EdgeFit| f.a == e.ligand_a && f.b == b;
+                let mut it = fit.edges.iter().filter(same);
+                fit.edges
+                    .iter()
+                    .filter(same)
+                    .find(|f| f.ddg == e.ddg)
+                    .or_else(|| it.next())
+            });
         if let Some(f) = found {
             e.fitted = Some(f.fitted);
             e.residual = Some(f.residual);

@@ -104,7 +104,20 @@ pub fn assemble(
     let measured_of = |id: &str| measured.iter().find(|m| m.ligand == id).map(|m| m.dg);
     let (ligands, offsets, cycles, hysteresis) = match info.kind {
         CampaignKind::Relative if !edges.is_empty() => {
-            let net: Vec<NetworkEdge> = edges.iter().map(NetworkEdge::from).collect();
+            // An edge without a usable σ cannot be weighted; leave it out of the
+            // fit (it stays in the tables) rather than lose the whole network.
+            let usable = |e: &&crate::cycle::EdgeResult| e.sigma.is_finite() && e.sigma > 0.0;
+            for e in edges.iter().filter(|e| !usable(e)) {
+                warnings.push(format!(
+                    "{}: σ = {} cannot weight the network fit, so this edge is left out of it",
+                    e.subject, e.sigma
+                ));
+            }
+            let net: Vec<NetworkEdge> =
+                edges.iter().filter(usable).map(NetworkEdge::from).collect();
+            if net.is_empty() {
+                return Err(NetworkError::Empty.into());
+            }
             let fit = solve(&net, &measured, info.reference.as_deref())?;
             annotate_edges(&mut edges, &fit);
             warnings.extend(fit.warnings.iter().cloned());

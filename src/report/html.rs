@@ -69,6 +69,7 @@ th { background:#eef3f2; font-weight:600; }
 td.l, th.l { text-align:left; }
 .flag { display:inline-block; background:#fbe3df; color:var(--bad); border-radius:3px; padding:0 5px; margin-right:3px; font-size:12px; }
 .ok { color:#2f855a; } .bad { color:var(--bad); font-weight:600; }
+details.inner { border:none; padding:0; margin:4px 0; }
 details { background:#fff; border:1px solid var(--line); border-radius:6px; margin:10px 0; padding:8px 12px; }
 summary { cursor:pointer; }
 .small { font-size:13px; color:var(--muted); }
@@ -103,11 +104,55 @@ fn stats_row(out: &mut String, what: &str, s: &Stats) {
 }
 
 fn figure(out: &mut String, svg: &str, caption: &str) {
+    // A <title> inside the SVG names the plot for screen readers and tooltips.
+    let svg = match svg.find('>') {
+        Some(i) if svg.starts_with("<svg") => format!(
+            "{} role=\"img\"><title>{}</title>{}",
+            &svg[..i],
+            esc(caption),
+            &svg[i + 1..]
+        ),
+        _ => svg.to_string(),
+    };
     let _ = writeln!(
         out,
         "<figure>{svg}<figcaption>{}</figcaption></figure>",
         esc(caption)
     );
+}
+
+fn windows_table(out: &mut String, l: &LegReplica) {
+    if l.windows.is_empty() {
+        return;
+    }
+    let multi = l.windows.iter().any(|w| w.component.is_some());
+    out.push_str("<details class=\"inner\"><summary class=\"small\">per-window diagnostics</summary><table><tr>");
+    if multi {
+        out.push_str("<th class=\"l\">component</th>");
+    }
+    out.push_str("<th>λ</th><th>⟨dU/dλ⟩</th><th>SEM</th><th>frames</th><th>discarded</th><th>inefficiency g</th></tr>\n");
+    let opt_u = |v: Option<u64>| v.map(|v| v.to_string()).unwrap_or_else(|| "–".into());
+    for w in &l.windows {
+        out.push_str("<tr>");
+        if multi {
+            let _ = write!(
+                out,
+                "<td class=\"l\">{}</td>",
+                esc(w.component.as_deref().unwrap_or(""))
+            );
+        }
+        let _ = writeln!(
+            out,
+            "<td>{:.3}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td></tr>",
+            w.lambda,
+            f2(w.dudl_mean),
+            f2(w.dudl_sem),
+            opt_u(w.frames),
+            opt_u(w.discarded),
+            o2(w.inefficiency)
+        );
+    }
+    out.push_str("</table></details>\n");
 }
 
 fn leg_section(
@@ -170,6 +215,7 @@ fn leg_section(
         out.push_str("</ul>\n");
     }
     if !with_plots {
+        windows_table(out, l);
         out.push_str("<p class=\"small\">Plots left out to keep the page small (many legs, nothing flagged here); the numbers are in results/summary.json.</p></details>\n");
         return Ok(());
     }
@@ -189,7 +235,9 @@ fn leg_section(
             figure(out, &svg, "ΔG from the first (forward) or last (reverse) part of every window. Curves that meet early suggest converged sampling.");
         }
     }
-    out.push_str("</div></details>\n");
+    out.push_str("</div>\n");
+    windows_table(out, l);
+    out.push_str("</details>\n");
     Ok(())
 }
 
@@ -255,7 +303,7 @@ pub fn render(r: &Results) -> Result<String, PlotError> {
     o.push_str("</div>\n");
 
     if let Some(s) = &r.statistics {
-        let _ = writeln!(o, "<h2 id=\"experiment\">Against experiment</h2>\n<p class=\"small\">Bootstrap 95% intervals in brackets ({} resamples, seed {}). Errors in {unit}.</p>", s.ligands.resamples, s.ligands.seed);
+        let _ = writeln!(o, "<h2 id=\"experiment\">Against experiment</h2>\n<p class=\"small\">Bootstrap 95% intervals in brackets ({} resamples, seed {}). Errors in {unit}. Per-ligand errors depend on the offset: when it is fixed by the measured mean, RMSE and MUE measure the scatter about that mean; per-edge errors do not depend on it.</p>", s.ligands.resamples, s.ligands.seed);
         o.push_str("<table><tr><th class=\"l\">over</th><th>n</th><th>RMSE</th><th>MUE</th><th>Pearson R</th><th>R²</th><th>Kendall τ</th></tr>\n");
         stats_row(&mut o, "ligands (ΔG)", &s.ligands);
         stats_row(&mut o, "edges (ΔΔG)", &s.edges);
@@ -299,7 +347,7 @@ pub fn render(r: &Results) -> Result<String, PlotError> {
         "<h2 id=\"edges\">{}</h2>\n<p class=\"small\">σ = √(σ<sub>replicas</sub>² + σ<sub>spread</sub>²): the replicas' own errors and the scatter between replicas, both shown.</p>",
         if relative { "Edges" } else { "Cycles per ligand" }
     );
-    o.push_str("<table><tr><th class=\"l\">subject</th><th>ΔΔG</th><th>σ</th><th>σ replicas</th><th>σ spread</th><th>replicas</th><th>corrections</th><th>network</th><th>residual</th><th class=\"l\">flags</th></tr>\n");
+    o.push_str("<table><tr><th class=\"l\">subject</th><th>ΔΔG</th><th>σ</th><th>σ replicas</th><th>σ spread</th><th>replicas</th><th class=\"l\">per replica</th><th>corrections</th><th>network</th><th>residual</th><th class=\"l\">flags</th></tr>\n");
     for e in r.worst_edges() {
         let flags: String = e
             .flags
@@ -308,13 +356,18 @@ pub fn render(r: &Results) -> Result<String, PlotError> {
             .collect();
         let _ = writeln!(
             o,
-            "<tr><td class=\"l\">{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td class=\"l\">{}</td></tr>",
+            "<tr><td class=\"l\">{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td>{}</td><td class=\"l small\">{}</td><td>{}</td><td>{}</td><td>{}</td><td class=\"l\">{}</td></tr>",
             esc(&e.subject),
             f2(e.ddg),
             f2(e.sigma),
             f2(e.sigma_replicas),
             f2(e.sigma_spread),
             e.legs.iter().map(|l| l.combined.n).min().unwrap_or(0),
+            e.replicas
+                .iter()
+                .map(|x| f2(x.ddg))
+                .collect::<Vec<_>>()
+                .join(", "),
             f2(e.corrections.iter().map(|c| c.value).sum()),
             o2(e.fitted),
             o2(e.residual),
@@ -376,7 +429,22 @@ pub fn render(r: &Results) -> Result<String, PlotError> {
     if !r.legs.is_empty() {
         o.push_str("<h2 id=\"legs\">Legs</h2>\n");
         let many = r.legs.len() > LEG_PLOT_LIMIT;
-        for (i, l) in r.legs.iter().enumerate() {
+        // Group by subject (in order of first appearance), then leg, then replica.
+        let mut order: Vec<&str> = Vec::new();
+        for l in &r.legs {
+            if !order.contains(&l.subject.as_str()) {
+                order.push(&l.subject);
+            }
+        }
+        let mut legs: Vec<&LegReplica> = r.legs.iter().collect();
+        legs.sort_by_key(|l| {
+            (
+                order.iter().position(|s| *s == l.subject),
+                l.leg.clone(),
+                l.replica,
+            )
+        });
+        for (i, l) in legs.into_iter().enumerate() {
             let open = i == 0 || r.legs.len() <= OPEN_LEGS;
             let worth = !l.warnings.is_empty()
                 || l.min_adjacent_overlap

@@ -96,9 +96,30 @@ pub fn write_all(root: &Path, r: &Results) -> Result<Written, ReportError> {
         (results_dir.join("summary.json"), tables::summary_json(r)),
         (html_path.clone(), html::render(r)?),
     ];
-    let mut written = Vec::with_capacity(files.len());
-    for (path, text) in files {
-        write_atomic(&path, &text)?;
+    // Every temporary file first; only when all are written are they renamed
+    // into place, so a failure (disk full, a folder that cannot be made) leaves
+    // the previous results untouched.
+    let mut staged: Vec<(PathBuf, PathBuf)> = Vec::with_capacity(files.len());
+    for (path, text) in &files {
+        match stage(path, text) {
+            Ok(tmp) => staged.push((tmp, path.clone())),
+            Err(e) => {
+                for (tmp, _) in &staged {
+                    let _ = std::fs::remove_file(tmp);
+                }
+                return Err(e);
+            }
+        }
+    }
+    let mut written = Vec::with_capacity(staged.len());
+    for (tmp, path) in staged {
+        std::fs::rename(&tmp, &path).map_err(|source| {
+            let _ = std::fs::remove_file(&tmp);
+            ReportError::Write {
+                path: path.clone(),
+                source,
+            }
+        })?;
         written.push(path);
     }
     Ok(Written {
@@ -108,7 +129,8 @@ pub fn write_all(root: &Path, r: &Results) -> Result<Written, ReportError> {
     })
 }
 
-fn write_atomic(path: &Path, text: &str) -> Result<(), ReportError> {
+/// Writes `text` next to `path` under a temporary name and returns that name.
+fn stage(path: &Path, text: &str) -> Result<PathBuf, ReportError> {
     let err = |source| ReportError::Write {
         path: path.to_path_buf(),
         source,
@@ -116,16 +138,10 @@ fn write_atomic(path: &Path, text: &str) -> Result<(), ReportError> {
     if let Some(dir) = path.parent() {
         std::fs::create_dir_all(dir).map_err(err)?;
     }
-    let tmp = path.with_extension(format!(
-        "{}.tmp{}",
-        path.extension().and_then(|e| e.to_str()).unwrap_or(""),
-        std::process::id()
-    ));
+    let name = path.file_name().and_then(|n| n.to_str()).unwrap_or("out");
+    let tmp = path.with_file_name(format!(".{name}.tmp{}", std::process::id()));
     std::fs::write(&tmp, text).map_err(err)?;
-    std::fs::rename(&tmp, path).map_err(|e| {
-        let _ = std::fs::remove_file(&tmp);
-        err(e)
-    })
+    Ok(tmp)
 }
 
 /// Reads `<root>/results/summary.json` back.

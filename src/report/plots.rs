@@ -208,6 +208,7 @@ pub fn predicted_vs_measured(r: &Results) -> Result<Option<String>, PlotError> {
         .ligands
         .iter()
         .filter_map(|l| Some((l.ligand.as_str(), l.measured?, l.dg, l.sigma)))
+        .filter(|p| p.1.is_finite() && p.2.is_finite())
         .collect();
     if pts.is_empty() {
         return Ok(None);
@@ -254,7 +255,7 @@ pub fn predicted_vs_measured(r: &Results) -> Result<Option<String>, PlotError> {
             pts.iter()
                 .map(|p| Circle::new((p.1, p.2), 5, ORANGE.filled())),
         )?;
-        if pts.len() <= 30 {
+        if pts.len() <= 15 {
             chart.draw_series(pts.iter().map(|p| {
                 EmptyElement::at((p.1, p.2))
                     + Text::new(
@@ -356,33 +357,59 @@ pub fn overlap(leg: &LegReplica) -> Result<Option<String>, PlotError> {
     .map(Some)
 }
 
-/// Trapezoid-rule integral of mean dU/dλ over λ (Kirkwood 1935, TI), for the caption.
+/// The windows grouped by λ component, in first-appearance order, keeping only
+/// finite points; single-component legs give one group.
+fn by_component(windows: &[WindowSummary]) -> Vec<(String, Vec<&WindowSummary>)> {
+    let mut groups: Vec<(String, Vec<&WindowSummary>)> = Vec::new();
+    for w in windows
+        .iter()
+        .filter(|w| w.lambda.is_finite() && w.dudl_mean.is_finite())
+    {
+        let name = w.component.clone().unwrap_or_else(|| "lambda".into());
+        match groups.iter_mut().find(|g| g.0 == name) {
+            Some(g) => g.1.push(w),
+            None => groups.push((name, vec![w])),
+        }
+    }
+    groups
+}
+
+/// Trapezoid-rule TI estimate (Kirkwood 1935): Σ over λ components of
+/// ∫ ⟨∂U/∂λ_c⟩ dλ_c, each along the states in order.
 pub fn trapezoid(windows: &[WindowSummary]) -> f64 {
-    windows
-        .windows(2)
-        .map(|w| 0.5 * (w[0].dudl_mean + w[1].dudl_mean) * (w[1].lambda - w[0].lambda))
+    by_component(windows)
+        .iter()
+        .map(|(_, ws)| {
+            ws.windows(2)
+                .map(|w| 0.5 * (w[0].dudl_mean + w[1].dudl_mean) * (w[1].lambda - w[0].lambda))
+                .sum::<f64>()
+        })
         .sum()
 }
 
-/// Mean dU/dλ against λ with ±SEM bars and the TI area shaded.
+/// Mean dU/dλ against λ with ±SEM bars and the TI area shaded, one series per
+/// λ component.
 pub fn dudl(leg: &LegReplica, unit: &str) -> Result<Option<String>, PlotError> {
-    let ws: Vec<&WindowSummary> = leg
-        .windows
-        .iter()
-        .filter(|w| w.lambda.is_finite() && w.dudl_mean.is_finite())
-        .collect();
-    if ws.len() < 2 {
+    let groups = by_component(&leg.windows);
+    if groups.iter().all(|g| g.1.len() < 2) {
         return Ok(None);
     }
-    let (ylo, yhi) = range(ws.iter().flat_map(|w| {
+    let all = || groups.iter().flat_map(|g| g.1.iter());
+    let (ylo, yhi) = range(all().flat_map(|w| {
         [
             w.dudl_mean - w.dudl_sem.abs(),
             w.dudl_mean + w.dudl_sem.abs(),
             0.0,
         ]
     }));
-    let (xlo, xhi) = range(ws.iter().map(|w| w.lambda));
+    let (xlo, xhi) = range(all().map(|w| w.lambda));
     let area = trapezoid(&leg.windows);
+    let colours = [
+        TEAL,
+        ORANGE,
+        RGBColor(0x5b, 0x4b, 0x9a),
+        RGBColor(0x8a, 0x6d, 0x1f),
+    ];
     render("dU/dλ", (380, 330), |root| {
         let mut chart = ChartBuilder::on(root)
             .caption(
@@ -402,18 +429,35 @@ pub fn dudl(leg: &LegReplica, unit: &str) -> Result<Option<String>, PlotError> {
             .y_desc(format!("⟨dU/dλ⟩ ({unit})"))
             .label_style((FONT, 11).into_font().color(&INK))
             .draw()?;
-        let pts: Vec<(f64, f64)> = ws.iter().map(|w| (w.lambda, w.dudl_mean)).collect();
-        chart.draw_series(AreaSeries::new(pts.clone(), 0.0, TEAL.mix(0.18)))?;
         chart.draw_series(LineSeries::new(
             [(xlo, 0.0), (xhi, 0.0)],
             MUTED.stroke_width(1),
         ))?;
-        chart.draw_series(LineSeries::new(pts.clone(), TEAL.stroke_width(2)))?;
-        for w in &ws {
-            let s = w.dudl_sem.abs();
-            error_bar(&mut chart, w.lambda, w.dudl_mean - s, w.dudl_mean + s, 3)?;
+        for (k, (name, ws)) in groups.iter().enumerate() {
+            let colour = colours[k % colours.len()];
+            let pts: Vec<(f64, f64)> = ws.iter().map(|w| (w.lambda, w.dudl_mean)).collect();
+            chart.draw_series(AreaSeries::new(pts.clone(), 0.0, colour.mix(0.16)))?;
+            let line = chart.draw_series(LineSeries::new(pts.clone(), colour.stroke_width(2)))?;
+            if groups.len() > 1 {
+                line.label(name.clone()).legend(move |(x, y)| {
+                    PathElement::new(vec![(x, y), (x + 18, y)], colour.stroke_width(2))
+                });
+            }
+            for w in ws {
+                let s = w.dudl_sem.abs();
+                error_bar(&mut chart, w.lambda, w.dudl_mean - s, w.dudl_mean + s, 3)?;
+            }
+            chart.draw_series(pts.iter().map(|&p| Circle::new(p, 3, colour.filled())))?;
         }
-        chart.draw_series(pts.iter().map(|&p| Circle::new(p, 3, TEAL.filled())))?;
+        if groups.len() > 1 {
+            chart
+                .configure_series_labels()
+                .background_style(PAPER.mix(0.9))
+                .border_style(MUTED)
+                .label_font((FONT, 11).into_font().color(&INK))
+                .position(SeriesLabelPosition::UpperRight)
+                .draw()?;
+        }
         Ok(())
     })
     .map(Some)

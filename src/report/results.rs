@@ -21,7 +21,8 @@ pub struct Results {
     pub kind: CampaignKind,
     /// The campaign unit every energy below is in.
     pub unit: EnergyUnit,
-    /// Temperature, K.
+    /// Temperature, K (spelled `temperature_K` as in the campaign file).
+    #[serde(rename = "temperature_K")]
     pub temperature_k: f64,
     /// Name of the headline estimator (e.g. `mbar`).
     pub estimator: String,
@@ -70,12 +71,16 @@ pub struct MethodValue {
     pub sigma: f64,
 }
 
-/// One λ window of a leg replica.
+/// One λ window of a leg replica (for a leg with several λ components, one
+/// entry per window and component).
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct WindowSummary {
-    /// Primary λ of the window's state.
+    /// λ of the window's state (of `component`, when given).
     pub lambda: f64,
-    /// Mean dU/dλ, campaign unit (per unit λ).
+    /// The λ component this dU/dλ belongs to; absent for single-component legs.
+    #[serde(default)]
+    pub component: Option<String>,
+    /// Mean dU/dλ (of `component`), campaign unit per unit λ.
     #[serde(deserialize_with = "super::lenient::f64")]
     pub dudl_mean: f64,
     /// Standard error of the mean dU/dλ (decorrelated).
@@ -122,7 +127,8 @@ pub struct LegReplica {
     pub leg: String,
     /// Replica number (from 1).
     pub replica: u32,
-    /// Sign of the leg in its cycle.
+    /// Sign of the leg in its cycle (shown in the tables; [`crate::report::assemble`]
+    /// closes cycles with the campaign's own leg signs).
     pub sign: f64,
     /// ΔG of the headline estimator, campaign unit.
     #[serde(deserialize_with = "super::lenient::f64")]

@@ -91,6 +91,7 @@ pub fn edges_csv(r: &Results) -> String {
         "sigma_replicas",
         "sigma_spread",
         "replicas",
+        "replica_ddg",
         "corrections",
         "fitted",
         "residual",
@@ -115,6 +116,11 @@ pub fn edges_csv(r: &Results) -> String {
                     .min()
                     .unwrap_or(0)
                     .to_string(),
+                e.replicas
+                    .iter()
+                    .map(|x| num(x.ddg))
+                    .collect::<Vec<_>>()
+                    .join(";"),
                 num(e.corrections.iter().map(|c| c.value).sum()),
                 opt(e.fitted),
                 opt(e.residual),
@@ -136,11 +142,23 @@ pub fn ligands_csv(r: &Results) -> String {
         "ligand",
         "dg",
         "sigma",
+        "dg_minus_mean",
         "measured",
         "rank",
         "component",
         "unit",
     ]);
+    // ΔG relative to the mean of its connected part: independent of how the
+    // offset was fixed, so comparable with any other gauge.
+    let mean_of = |c: usize| {
+        let v: Vec<f64> = r
+            .ligands
+            .iter()
+            .filter(|l| l.component == c && l.dg.is_finite())
+            .map(|l| l.dg)
+            .collect();
+        v.iter().sum::<f64>() / v.len().max(1) as f64
+    };
     let rows = r
         .ranked_ligands()
         .iter()
@@ -150,6 +168,7 @@ pub fn ligands_csv(r: &Results) -> String {
                 l.ligand.clone(),
                 num(l.dg),
                 num(l.sigma),
+                num(l.dg - mean_of(l.component)),
                 opt(l.measured),
                 (i + 1).to_string(),
                 l.component.to_string(),

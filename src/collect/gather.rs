@@ -190,29 +190,37 @@ fn leg_replica(
             }
         })
         .collect();
-    let single = est
+    let multi = est
         .ti_points
         .iter()
-        .all(|p| p.component == est.ti_points[0].component);
-    let windows = est
-        .windows
-        .iter()
-        .map(|w| {
-            let point = est.ti_points.iter().find(|p| p.state == w.state);
-            let (mean, sem) = match point {
-                Some(p) if single => (p.mean * f, p.sem * f),
-                _ => (f64::NAN, f64::NAN),
-            };
-            report::WindowSummary {
-                lambda: est.lambdas[w.state],
-                dudl_mean: mean,
-                dudl_sem: sem,
-                frames: Some(w.frames as u64),
-                discarded: Some(w.equilibration_frames as u64),
-                inefficiency: Some(w.inefficiency),
-            }
-        })
-        .collect();
+        .any(|p| p.component != est.ti_points[0].component);
+    let diag = |state: usize| est.windows.iter().find(|w| w.state == state);
+    let summary = |state: usize, lambda: f64, component: Option<String>, mean: f64, sem: f64| {
+        let d = diag(state);
+        report::WindowSummary {
+            lambda,
+            component,
+            dudl_mean: mean,
+            dudl_sem: sem,
+            frames: d.map(|w| w.frames as u64),
+            discarded: d.map(|w| w.equilibration_frames as u64),
+            inefficiency: d.map(|w| w.inefficiency),
+        }
+    };
+    let windows = if est.ti_points.is_empty() {
+        est.windows
+            .iter()
+            .map(|w| summary(w.state, est.lambdas[w.state], None, f64::NAN, f64::NAN))
+            .collect()
+    } else {
+        est.ti_points
+            .iter()
+            .map(|p| {
+                let component = multi.then(|| p.component.clone());
+                summary(p.state, p.lambda, component, p.mean * f, p.sem * f)
+            })
+            .collect()
+    };
     let convergence = est.convergence.as_ref().map(|c| {
         let pick = |g: &dyn Fn(&crate::estimate::ConvergencePoint) -> f64| {
             c.points.iter().map(|p| g(p) * f).collect::<Vec<f64>>()

@@ -246,7 +246,7 @@ fn boresch_release_enters_with_the_leg_sign_and_in_the_campaign_unit() {
 
 #[test]
 fn boresch_formula_by_hand() {
-    // Boresch et al. 2003, eq. 32, evaluated by hand for k_r = 10 kcal/mol/Å²,
+    // Boresch et al. 2003 (eq. 32, number from memory), evaluated by hand for k_r = 10 kcal/mol/Å²,
     // all angular k = 10 kcal/mol/rad², r0 = 5.2 Å, θA = θB = 90°, T = 298.15 K:
     // kT = 0.5924849 kcal/mol (CODATA 2018 R, 4.184 J/cal),
     // V° = 1660.5391 Å³, 8π²V° = 131 111.7, √(10⁶) = 1000,

@@ -54,7 +54,7 @@ fn demo_windows_to_reconciled_ligands_match_the_exact_answers() {
                         tmp.path()
                             .join(format!("{}-{}-{replica}-{state}.tsv", e.id(), leg.name));
                     run(&RunConfig {
-                        system: system.clone(),
+                        system,
                         temperature_k: c.temperature_k,
                         lambdas: lambdas.clone(),
                         state,

@@ -143,18 +143,19 @@ fn html_is_one_self_contained_file_with_plots_and_cautions() {
     {
         assert!(href.starts_with('#'), "external link in the report: {href}");
     }
-    // The plots, inline: network, predicted vs measured, and per plotted leg the
-    // overlap heatmap, dU/dλ and convergence.
+    // The plots, inline: network, predicted vs measured per ligand and per edge,
+    // and per plotted leg the overlap heatmap, dU/dλ and convergence.
     let svgs = html.matches("<svg").count();
     let plotted_legs = html.matches("Overlap matrix").count();
     assert!(plotted_legs >= 1);
     assert_eq!(
         svgs,
-        2 + 3 * plotted_legs,
+        3 + 3 * plotted_legs,
         "{svgs} SVGs for {plotted_legs} plotted legs"
     );
     assert!(html.contains("Network: edge colour"));
-    assert!(html.contains("Predicted against measured"));
+    assert!(html.contains("Predicted against measured ΔG"));
+    assert!(html.contains("Predicted against measured ΔΔG"));
     assert!(html.contains("±1 and ±2 kcal/mol"));
     assert!(html.contains("TI area"));
     assert!(html.contains("Forward and reverse convergence"));

@@ -310,6 +310,9 @@ pub fn render(r: &Results) -> Result<String, PlotError> {
         Some(svg) => figure(&mut o, &svg, "Each point is a ligand with a measurement; the diagonal is perfect agreement."),
         None => o.push_str("<p class=\"small\">No measured values: the comparison with experiment is not shown.</p>\n"),
     }
+    if let Some(svg) = plots::edges_vs_measured(r)? {
+        figure(&mut o, &svg, "Each point is an edge with both ligands measured: its own ΔΔG (before the network) against the measured difference.");
+    }
     o.push_str("</div>\n");
 
     if let Some(s) = &r.statistics {

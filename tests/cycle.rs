@@ -246,13 +246,13 @@ fn boresch_release_enters_with_the_leg_sign_and_in_the_campaign_unit() {
 
 #[test]
 fn boresch_formula_by_hand() {
-    // Boresch et al. 2003, eq. 32, evaluated by hand for k_r = 10 kcal/mol/Å²,
+    // Boresch et al. 2003 (eq. 32, number from memory), evaluated by hand for k_r = 10 kcal/mol/Å²,
     // all angular k = 10 kcal/mol/rad², r0 = 5.2 Å, θA = θB = 90°, T = 298.15 K:
     // kT = 0.5924849 kcal/mol (CODATA 2018 R, 4.184 J/cal),
-    // V° = 1660.5391 Å³, 8π²V° = 131 111.7, √(10⁶) = 1000,
-    // (2πkT)³ = 3.7226843³ = 51.588 , r0² = 27.04,
-    // ratio = 131 111.7 × 1000 / (27.04 × 51.588) = 93 991,
-    // ΔG = −0.5924849 × ln(93 991) = −0.5924849 × 11.4509 = −6.7845 kcal/mol.
+    // V° = 1660.5391 Å³, 8π²V° = 131 110.9, √(10⁶) = 1000,
+    // (2πkT)³ = 3.7226927³ = 51.5907, r0² = 27.04,
+    // ratio = 131 110.9 × 1000 / (27.04 × 51.5907) = 93 985,
+    // ΔG = −0.5924849 × ln(93 985) = −0.5924849 × 11.4509 = −6.7845 kcal/mol.
     assert!((STANDARD_VOLUME_A3 - 1660.5391).abs() < 1e-3);
     let g = restraint(10.0, 10.0, 90.0, 90.0).release_free_energy(T, EnergyUnit::KcalPerMol);
     assert!((g - (-6.7845)).abs() < 2e-3, "{g}");

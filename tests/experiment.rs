@@ -21,11 +21,11 @@ fn ki_of_one_nanomolar_by_hand() {
     // Hand calculation with R from CODATA 2018 (8.314462618 J/(mol·K)):
     // RT = 8.314462618 × 298.15 = 2478.957 J/mol = 2.478957 kJ/mol;
     // ln(1e-9) = −9 ln 10 = −20.723266;
-    // ΔG = 2.478957 × (−20.723266) = −51.372088 kJ/mol
-    //    = −51.372088 / 4.184 = −12.278224 kcal/mol (thermochemical calorie, NIST SP 811).
-    assert!((dg_from_constant_kj(1e-9, T) - (-51.372_088)).abs() < 1e-5);
+    // ΔG = 2.478957 × (−20.723266) = −51.372086 kJ/mol
+    //    = −51.372086 / 4.184 = −12.278223 kcal/mol (thermochemical calorie, NIST SP 811).
+    assert!((dg_from_constant_kj(1e-9, T) - (-51.372_086)).abs() < 1e-5);
     let m = parse("ligand,kind,value,unit\nork-01,ki,1,nM\n").unwrap();
-    assert!((m[0].dg - (-12.278_224)).abs() < 1e-5, "{}", m[0].dg);
+    assert!((m[0].dg - (-12.278_223)).abs() < 1e-5, "{}", m[0].dg);
     assert_eq!(m[0].kind, MeasuredKind::Ki);
 }
 
@@ -38,8 +38,8 @@ fn every_concentration_unit_agrees() {
     for x in &m[1..] {
         assert!((x.dg - m[0].dg).abs() < 1e-9, "{} vs {}", x.dg, m[0].dg);
     }
-    // 2.5 µM: RT ln(2.5e-6) / 4.184 = 0.5924849 × (−12.899220) = −7.642590 kcal/mol.
-    assert!((m[0].dg - (-7.642_59)).abs() < 1e-4, "{}", m[0].dg);
+    // 2.5 µM: RT ln(2.5e-6) / 4.184 = 0.5924849 × (−12.899220) = −7.642594 kcal/mol.
+    assert!((m[0].dg - (-7.642_594)).abs() < 1e-5, "{}", m[0].dg);
 }
 
 #[test]

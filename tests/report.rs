@@ -143,18 +143,19 @@ fn html_is_one_self_contained_file_with_plots_and_cautions() {
     {
         assert!(href.starts_with('#'), "external link in the report: {href}");
     }
-    // The plots, inline: network, predicted vs measured, and per plotted leg the
-    // overlap heatmap, dU/dλ and convergence.
+    // The plots, inline: network, predicted vs measured per ligand and per edge,
+    // and per plotted leg the overlap heatmap, dU/dλ and convergence.
     let svgs = html.matches("<svg").count();
     let plotted_legs = html.matches("Overlap matrix").count();
     assert!(plotted_legs >= 1);
     assert_eq!(
         svgs,
-        2 + 3 * plotted_legs,
+        3 + 3 * plotted_legs,
         "{svgs} SVGs for {plotted_legs} plotted legs"
     );
     assert!(html.contains("Network: edge colour"));
-    assert!(html.contains("Predicted against measured"));
+    assert!(html.contains("Predicted against measured ΔG"));
+    assert!(html.contains("Predicted against measured ΔΔG"));
     assert!(html.contains("±1 and ±2 kcal/mol"));
     assert!(html.contains("TI area"));
     assert!(html.contains("Forward and reverse convergence"));
@@ -462,4 +463,68 @@ fn odd_inputs_still_render() {
     write_all(dir.path(), &r).unwrap();
     let html = std::fs::read_to_string(dir.path().join("report/index.html")).unwrap();
     assert!(html.contains("No measured values"));
+}
+
+#[test]
+fn leg_replica_from_a_real_estimate_is_in_the_campaign_unit() {
+    use legwork::collect::{LegSamples, WindowSamples};
+    use legwork::estimate::{estimate_leg, EstimateOptions, Method};
+    use legwork::report::LegReplica;
+    use legwork::units::{kt_in, EnergyUnit};
+    use rand::SeedableRng;
+    use rand_distr::{Distribution, Normal};
+    // Harmonic oscillators U_λ = ½ k_λ x² (reduced units), k_λ = 1 + 3λ: the exact
+    // ΔG = ½ ln(k₁/k₀) = ½ ln 4 kT (Shirts & Chodera 2008, harmonic oscillator test).
+    let lambdas = vec![0.0, 0.25, 0.5, 0.75, 1.0];
+    let k = |l: f64| 1.0 + 3.0 * l;
+    let mut rng = rand_chacha::ChaCha8Rng::seed_from_u64(9);
+    let windows = lambdas
+        .iter()
+        .enumerate()
+        .map(|(s, &l)| {
+            let normal = Normal::new(0.0, 1.0 / k(l).sqrt()).unwrap();
+            let xs: Vec<f64> = (0..1500).map(|_| normal.sample(&mut rng)).collect();
+            let reduced = xs
+                .iter()
+                .flat_map(|x| lambdas.iter().map(move |&m| 0.5 * k(m) * x * x))
+                .collect();
+            let dudl = xs.iter().map(|x| 0.5 * 3.0 * x * x).collect();
+            WindowSamples::from_reduced(s, 298.15, lambdas.clone(), reduced, dudl)
+        })
+        .collect();
+    let est = estimate_leg(
+        &LegSamples::from_windows(windows),
+        &EstimateOptions::default(),
+    )
+    .unwrap();
+    let unit = EnergyUnit::KcalPerMol;
+    let r = LegReplica::from_estimate("ork-01~ork-02", "complex", 1, 1.0, &est, Method::Mbar, unit)
+        .unwrap();
+    let kt = kt_in(unit, 298.15);
+    let mbar = est.estimates[&Method::Mbar];
+    assert!((r.dg - mbar.delta_g * kt).abs() < 1e-12);
+    assert!((r.sigma - mbar.sigma * kt).abs() < 1e-12);
+    let exact = 0.5 * 4f64.ln() * kt;
+    assert!(
+        (r.dg - exact).abs() < 4.0 * r.sigma,
+        "{} vs exact {exact} ± {}",
+        r.dg,
+        r.sigma
+    );
+    assert_eq!(r.methods.len(), est.estimates.len());
+    assert!(r.methods.iter().any(|m| m.method == "mbar"));
+    assert_eq!(r.windows.len(), 5);
+    assert!(r
+        .windows
+        .iter()
+        .all(|w| w.component.is_none() && w.frames == Some(1500)));
+    // The TI area of the converted windows is the trapezoid TI estimate, in kcal/mol.
+    let ti = est.estimates[&Method::Ti].delta_g * kt;
+    assert!((legwork::report::plots::trapezoid(&r.windows) - ti).abs() < 1e-9);
+    assert_eq!(r.overlap.len(), 5);
+    assert!(r.convergence.is_some());
+    assert!(
+        LegReplica::from_estimate("x", "complex", 1, 1.0, &est, Method::TiSpline, unit).is_some()
+            == est.estimates.contains_key(&Method::TiSpline)
+    );
 }

@@ -69,7 +69,7 @@ impl BoreschRestraint {
     }
 
     /// Free energy of releasing the restraint from the decoupled ligand into the
-    /// 1 M standard state, in `unit` at `temperature_k` (Boresch et al. 2003, eq. 32):
+    /// 1 M standard state, in `unit` at `temperature_k` (Boresch et al. 2003, J. Phys. Chem. B 107, 9535; equation number from memory: eq. 32):
     ///
     /// ΔG = −kT ln[ 8π² V° √(k_r k_θA k_θB k_φA k_φB k_φC) / (r0² sin θA sin θB (2π kT)³) ]
     ///

@@ -36,8 +36,13 @@ fn esc(s: &str) -> String {
 
 fn f2(v: f64) -> String {
     if v.is_finite() {
-        // `+ 0.0` turns −0 (e.g. an empty sum) into 0 so it does not print as "-0.00".
-        format!("{:.2}", v + 0.0)
+        let s = format!("{v:.2}");
+        // A value that rounds to zero prints as 0.00, never "-0.00".
+        if s == "-0.00" {
+            "0.00".into()
+        } else {
+            s
+        }
     } else {
         "–".into()
     }
@@ -252,13 +257,18 @@ pub fn render(r: &Results) -> Result<String, PlotError> {
     );
     let _ = writeln!(
         o,
-        "<h1>{}</h1>\n<p class=\"meta\">{} campaign · energies in {unit} · {} K · headline estimator {} · {} leg replicas, {} cycles, {} ligands{}</p>",
+        "<h1>{}</h1>\n<p class=\"meta\">{} campaign · energies in {unit} · {} K · headline estimator {} · {} leg replicas, {} {}, {} ligands{}</p>",
         esc(&r.campaign),
         r.kind.as_str(),
         r.temperature_k,
         esc(&r.estimator),
         r.legs.len(),
         r.edges.len(),
+        if r.edges.iter().any(|e| e.ligand_b.is_some()) {
+            "edges"
+        } else {
+            "ligand cycles"
+        },
         r.ligands.len(),
         r.generated_at
             .as_deref()
@@ -299,6 +309,9 @@ pub fn render(r: &Results) -> Result<String, PlotError> {
     match plots::predicted_vs_measured(r)? {
         Some(svg) => figure(&mut o, &svg, "Each point is a ligand with a measurement; the diagonal is perfect agreement."),
         None => o.push_str("<p class=\"small\">No measured values: the comparison with experiment is not shown.</p>\n"),
+    }
+    if let Some(svg) = plots::edges_vs_measured(r)? {
+        figure(&mut o, &svg, "Each point is an edge with both ligands measured: its own ΔΔG (before the network) against the measured difference.");
     }
     o.push_str("</div>\n");
 

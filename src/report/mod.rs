@@ -1,11 +1,13 @@
 //! Results tables (CSV, JSON), SVG plots and the HTML report.
 //!
-//! [`Results`] is the data model: [`assemble`] builds it from finished leg
-//! replicas, [`write_all`] writes `results/*.csv`, `results/summary.json` and
+//! [`Results`] is the data model: [`LegReplica::from_estimate`] turns one leg
+//! replica's estimate into the report's entry, [`assemble`] builds the whole
+//! model from finished leg replicas, [`write_all`] writes `results/*.csv`, `results/summary.json` and
 //! `report/index.html` under the campaign root, [`load`] reads summary.json back
 //! for re-rendering, and [`print_summary`] writes the terminal summary.
 
 mod assemble;
+mod from_estimate;
 pub mod html;
 mod lenient;
 pub mod plots;
@@ -14,6 +16,7 @@ mod summary;
 pub mod tables;
 
 pub use assemble::{assemble, leg_spec, AssembleError, CampaignInfo, MIN_OVERLAP};
+pub use from_estimate::method_name;
 pub use results::{
     Convergence, LegReplica, MethodValue, MissingWork, Results, WindowSummary, RESULTS_SCHEMA,
 };

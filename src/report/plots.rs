@@ -201,13 +201,40 @@ pub fn network(r: &Results) -> Result<String, PlotError> {
     })
 }
 
-/// Predicted against measured ΔG with σ error bars, the identity line and
-/// ±1 kcal/mol and ±2 kcal/mol bands (drawn in the campaign unit).
+/// Predicted against measured ΔG of each ligand with σ error bars, the
+/// identity line and ±1 kcal/mol and ±2 kcal/mol bands (drawn in the campaign unit).
 pub fn predicted_vs_measured(r: &Results) -> Result<Option<String>, PlotError> {
-    let pts: Vec<(&str, f64, f64, f64)> = r
+    let pts: Vec<(String, f64, f64, f64)> = r
         .ligands
         .iter()
-        .filter_map(|l| Some((l.ligand.as_str(), l.measured?, l.dg, l.sigma)))
+        .filter_map(|l| Some((l.ligand.clone(), l.measured?, l.dg, l.sigma)))
+        .collect();
+    agreement(r, pts, "Predicted against measured ΔG", "ΔG")
+}
+
+/// Each edge's own ΔΔG against the measured ΔG(b) − ΔG(a), same layout.
+pub fn edges_vs_measured(r: &Results) -> Result<Option<String>, PlotError> {
+    let m = |id: &str| r.measured.iter().find(|m| m.ligand == id).map(|m| m.dg);
+    let pts: Vec<(String, f64, f64, f64)> = r
+        .edges
+        .iter()
+        .filter_map(|e| {
+            let b = e.ligand_b.as_deref()?;
+            Some((e.subject.clone(), m(b)? - m(&e.ligand_a)?, e.ddg, e.sigma))
+        })
+        .collect();
+    agreement(r, pts, "Predicted against measured ΔΔG", "ΔΔG")
+}
+
+/// (label, measured, predicted, σ) points against the identity line.
+fn agreement(
+    r: &Results,
+    pts: Vec<(String, f64, f64, f64)>,
+    title: &'static str,
+    quantity: &'static str,
+) -> Result<Option<String>, PlotError> {
+    let pts: Vec<(String, f64, f64, f64)> = pts
+        .into_iter()
         .filter(|p| p.1.is_finite() && p.2.is_finite())
         .collect();
     if pts.is_empty() {
@@ -221,12 +248,9 @@ pub fn predicted_vs_measured(r: &Results) -> Result<Option<String>, PlotError> {
             .chain(pts.iter().map(|p| p.1 + one)),
     );
     let unit = r.unit.to_string();
-    render("predicted vs measured", (500, 500), |root| {
+    render(title, (500, 500), |root| {
         let mut chart = ChartBuilder::on(root)
-            .caption(
-                "Predicted against measured ΔG",
-                (FONT, 16).into_font().color(&INK),
-            )
+            .caption(title, (FONT, 16).into_font().color(&INK))
             .margin(14)
             .x_label_area_size(44)
             .y_label_area_size(56)
@@ -236,8 +260,8 @@ pub fn predicted_vs_measured(r: &Results) -> Result<Option<String>, PlotError> {
             .light_line_style(TRANSPARENT)
             .bold_line_style(RGBColor(0xe4, 0xe7, 0xeb))
             .axis_style(MUTED)
-            .x_desc(format!("measured ΔG ({unit})"))
-            .y_desc(format!("predicted ΔG ({unit})"))
+            .x_desc(format!("measured {quantity} ({unit})"))
+            .y_desc(format!("predicted {quantity} ({unit})"))
             .label_style((FONT, 12).into_font().color(&INK))
             .draw()?;
         for (k, alpha) in [(2.0, 0.08), (1.0, 0.16)] {

@@ -84,7 +84,10 @@ fn demo_campaign_recovers_the_exact_answers() {
         .map(|l| (num(l, "dg_minus_mean") - exact_lig[&l["ligand"]]).powi(2))
         .sum();
     let rmse = (sq / ligands.len() as f64).sqrt();
-    assert!(rmse < 0.3, "per-ligand RMSE {rmse:.3} kcal/mol against the exact answers");
+    assert!(
+        rmse < 0.3,
+        "per-ligand RMSE {rmse:.3} kcal/mol against the exact answers"
+    );
 
     let html = std::fs::read_to_string(root.join("report/index.html")).unwrap();
     assert!(html.contains("<svg"), "the report carries its plots");

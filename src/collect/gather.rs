@@ -5,11 +5,10 @@
 use super::cache::{ParseCache, Source};
 use super::{assemble, ReadError, WindowSamples};
 use crate::campaign::Campaign;
-use crate::estimate::{estimate_leg, EstimateError, EstimateOptions, LegEstimate, Method};
+use crate::estimate::{estimate_leg, EstimateError, EstimateOptions};
 use crate::network::experiment::{read_measured, ExperimentError};
 use crate::plan::{Plan, TaskIndex, WindowSet};
 use crate::report::{self, CampaignInfo, LegReplica, MissingWork, Results};
-use crate::units::EnergyUnit;
 use rayon::prelude::*;
 use std::path::PathBuf;
 use std::sync::atomic::{AtomicUsize, Ordering};
@@ -132,19 +131,25 @@ pub fn collect_campaign(
                 what: what.clone(),
                 source,
             })?;
-            let mut warnings = samples.warnings.clone();
-            warnings.extend(est.warnings.iter().cloned());
             let leg = campaign
                 .leg(&set.leg)
                 .expect("the plan's legs come from the campaign");
-            let entry = leg_replica(
-                set,
+            let mut entry = LegReplica::from_estimate(
+                &set.subject.id(),
+                &set.leg,
+                set.replica,
                 f64::from(leg.sign),
                 &est,
                 campaign.analysis.estimator,
                 campaign.unit,
-                warnings,
-            );
+            )
+            .ok_or_else(|| CollectError::NoOutput(format!(
+                "{what}: the headline estimator {} gave no estimate; see the warnings of `legwork estimate` on its windows",
+                campaign.analysis.estimator.as_str()
+            )))?;
+            let mut warnings = samples.warnings;
+            warnings.append(&mut entry.warnings);
+            entry.warnings = warnings;
             progress(finished.fetch_add(1, Ordering::Relaxed) + 1, ready.len());
             Ok(entry)
         })
@@ -162,89 +167,4 @@ pub fn collect_campaign(
     let info = CampaignInfo::from_campaign(campaign);
     let results = report::assemble(&info, legs, measured, missing)?;
     Ok((results, counts))
-}
-
-/// One leg replica's estimate as the report sees it, in the campaign unit.
-fn leg_replica(
-    set: &WindowSet,
-    sign: f64,
-    est: &LegEstimate,
-    headline: Method,
-    unit: EnergyUnit,
-    warnings: Vec<String>,
-) -> LegReplica {
-    let t = est.temperature_k;
-    let f = EnergyUnit::Kt.factor_to(unit, t);
-    let head = est
-        .delta_g_in(headline, unit)
-        .or_else(|| est.delta_g_in(Method::Mbar, unit));
-    let methods = est
-        .estimates
-        .iter()
-        .map(|(m, d)| {
-            let d = d.in_unit(unit, t);
-            report::MethodValue {
-                method: m.as_str().to_string(),
-                dg: d.delta_g,
-                sigma: d.sigma,
-            }
-        })
-        .collect();
-    let multi = est
-        .ti_points
-        .iter()
-        .any(|p| p.component != est.ti_points[0].component);
-    let diag = |state: usize| est.windows.iter().find(|w| w.state == state);
-    let summary = |state: usize, lambda: f64, component: Option<String>, mean: f64, sem: f64| {
-        let d = diag(state);
-        report::WindowSummary {
-            lambda,
-            component,
-            dudl_mean: mean,
-            dudl_sem: sem,
-            frames: d.map(|w| w.frames as u64),
-            discarded: d.map(|w| w.equilibration_frames as u64),
-            inefficiency: d.map(|w| w.inefficiency),
-        }
-    };
-    let windows = if est.ti_points.is_empty() {
-        est.windows
-            .iter()
-            .map(|w| summary(w.state, est.lambdas[w.state], None, f64::NAN, f64::NAN))
-            .collect()
-    } else {
-        est.ti_points
-            .iter()
-            .map(|p| {
-                let component = multi.then(|| p.component.clone());
-                summary(p.state, p.lambda, component, p.mean * f, p.sem * f)
-            })
-            .collect()
-    };
-    let convergence = est.convergence.as_ref().map(|c| {
-        let pick = |g: &dyn Fn(&crate::estimate::ConvergencePoint) -> f64| {
-            c.points.iter().map(|p| g(p) * f).collect::<Vec<f64>>()
-        };
-        report::Convergence {
-            fractions: c.points.iter().map(|p| p.fraction).collect(),
-            forward: pick(&|p| p.forward.delta_g),
-            forward_sigma: pick(&|p| p.forward.sigma),
-            reverse: pick(&|p| p.reverse.delta_g),
-            reverse_sigma: pick(&|p| p.reverse.sigma),
-        }
-    });
-    LegReplica {
-        subject: set.subject.id(),
-        leg: set.leg.clone(),
-        replica: set.replica,
-        sign,
-        dg: head.map_or(f64::NAN, |d| d.delta_g),
-        sigma: head.map_or(f64::NAN, |d| d.sigma),
-        methods,
-        overlap: est.overlap.clone().unwrap_or_default(),
-        min_adjacent_overlap: est.min_adjacent_overlap,
-        windows,
-        convergence,
-        warnings,
-    }
 }

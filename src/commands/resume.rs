@@ -25,7 +25,8 @@ pub struct Args {
 pub fn run(args: Args, global: &Global) -> anyhow::Result<()> {
     with_campaign(&args.file, args.lock_wait, global, |c| {
         let sel = args.select.selection();
-        let r = crate::state::resume(c.state, c.sched.as_mut(), &c.ctx, &sel).map_err(state_exit)?;
+        let r =
+            crate::state::resume(c.state, c.sched.as_mut(), &c.ctx, &sel).map_err(state_exit)?;
         if !global.quiet {
             println!(
                 "resubmitting {} tasks ({} from a checkpoint, {} with a longer walltime); submitted {} tasks in {} jobs",

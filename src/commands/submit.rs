@@ -38,7 +38,12 @@ pub fn run(args: Args, global: &Global) -> anyhow::Result<()> {
     }
     let file = args.file.expect("clap requires it");
     super::status::with_campaign(&file, args.lock_wait, global, |c| {
-        let s = crate::state::submit_ready(c.state, c.sched.as_mut(), &c.ctx, &crate::state::Selection::all())?;
+        let s = crate::state::submit_ready(
+            c.state,
+            c.sched.as_mut(),
+            &c.ctx,
+            &crate::state::Selection::all(),
+        )?;
         if !global.quiet {
             println!(
                 "submitted {} tasks in {} jobs{}",

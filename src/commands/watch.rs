@@ -70,11 +70,8 @@ pub fn run(args: Args, global: &Global) -> anyhow::Result<()> {
             print!("{}", table(&s, kind, false));
             return Ok(());
         }
-        let interval = Duration::from_secs_f64(
-            args.interval
-                .unwrap_or(c.ctx.config.poll_seconds)
-                .max(0.05),
-        );
+        let interval =
+            Duration::from_secs_f64(args.interval.unwrap_or(c.ctx.config.poll_seconds).max(0.05));
         let bars = Bars::new(global.quiet);
         let settled = state::watch_until_settled(
             c.state,
@@ -170,7 +167,9 @@ impl Bars {
         let mut legs = self.legs.borrow_mut();
         for (leg, done, total, msg) in per_leg {
             let bar = legs.entry(leg.clone()).or_insert_with(|| {
-                let b = self.multi.insert_before(&self.overall, ProgressBar::new(total as u64));
+                let b = self
+                    .multi
+                    .insert_before(&self.overall, ProgressBar::new(total as u64));
                 b.set_style(style());
                 b.set_prefix(leg.clone());
                 b

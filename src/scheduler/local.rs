@@ -244,12 +244,19 @@ impl Local {
                 Ok(())
             });
         }
-        tracing::debug!("starting the local executor: {} submit --local-executor {}", exe.display(), self.root.display());
+        tracing::debug!(
+            "starting the local executor: {} submit --local-executor {}",
+            exe.display(),
+            self.root.display()
+        );
         let mut child = cmd.spawn().map_err(|e| SchedulerError::io(&exe, e))?;
         let pid = child.id().to_string();
         let start = Instant::now();
         loop {
-            if std::fs::read_to_string(self.paths.ready()).ok().as_deref().map(str::trim)
+            if std::fs::read_to_string(self.paths.ready())
+                .ok()
+                .as_deref()
+                .map(str::trim)
                 == Some(pid.as_str())
             {
                 // Reap it in the background when it exits.
@@ -368,17 +375,32 @@ impl Scheduler for Local {
             running = true;
         }
         let statuses: Vec<(String, Option<JobStatusFile>)> = if unfinished {
-            jobs.iter().map(|j| (j.clone(), self.read_status(j))).collect()
+            jobs.iter()
+                .map(|j| (j.clone(), self.read_status(j)))
+                .collect()
         } else {
             statuses
         };
         for (job, st) in statuses {
+            // Submitted but not yet read by the executor: every element waits.
+            let st = st.or_else(|| {
+                let bytes = std::fs::read(self.paths.job(&job)).ok()?;
+                let j: LocalJob = serde_json::from_slice(&bytes).ok()?;
+                Some(
+                    j.indices
+                        .iter()
+                        .map(|i| (*i, ElementState::Pending))
+                        .collect(),
+                )
+            });
             let Some(st) = st else { continue };
             for (idx, e) in st {
                 if !running && !e.is_terminal() {
                     continue;
                 }
-                result.elements.insert(self.element_id(&job, idx), e.status());
+                result
+                    .elements
+                    .insert(self.element_id(&job, idx), e.status());
             }
         }
         Ok(result)

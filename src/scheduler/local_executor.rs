@@ -61,9 +61,18 @@ pub fn run(root: &Path, max_parallel: usize) -> Result<(), SchedulerError> {
         return Ok(());
     }
     unsafe {
-        libc::signal(libc::SIGINT, on_stop as extern "C" fn(libc::c_int) as libc::sighandler_t);
-        libc::signal(libc::SIGTERM, on_stop as extern "C" fn(libc::c_int) as libc::sighandler_t);
-        libc::signal(libc::SIGHUP, on_stop as extern "C" fn(libc::c_int) as libc::sighandler_t);
+        libc::signal(
+            libc::SIGINT,
+            on_stop as extern "C" fn(libc::c_int) as libc::sighandler_t,
+        );
+        libc::signal(
+            libc::SIGTERM,
+            on_stop as extern "C" fn(libc::c_int) as libc::sighandler_t,
+        );
+        libc::signal(
+            libc::SIGHUP,
+            on_stop as extern "C" fn(libc::c_int) as libc::sighandler_t,
+        );
     }
     let mut ex = Executor {
         paths,
@@ -91,7 +100,11 @@ pub fn run(root: &Path, max_parallel: usize) -> Result<(), SchedulerError> {
     }
     ex.flush()?;
     write_atomic(&ex.paths.ready(), std::process::id().to_string().as_bytes())?;
-    tracing::info!("local executor {} running with {} slots", std::process::id(), ex.slots);
+    tracing::info!(
+        "local executor {} running with {} slots",
+        std::process::id(),
+        ex.slots
+    );
     let mut idle_since: Option<Instant> = None;
     loop {
         if STOP.load(Ordering::SeqCst) {
@@ -137,20 +150,30 @@ impl Executor {
         };
         for e in rd.flatten() {
             let name = e.file_name().to_string_lossy().into_owned();
-            let Some(id) = name.strip_suffix(".json").and_then(|s| s.parse::<u64>().ok()) else {
+            let Some(id) = name
+                .strip_suffix(".json")
+                .and_then(|s| s.parse::<u64>().ok())
+            else {
                 continue;
             };
             if self.jobs.contains_key(&id) {
                 continue;
             }
-            let Ok(bytes) = std::fs::read(e.path()) else { continue };
-            let Ok(job) = serde_json::from_slice::<LocalJob>(&bytes) else { continue };
+            let Ok(bytes) = std::fs::read(e.path()) else {
+                continue;
+            };
+            let Ok(job) = serde_json::from_slice::<LocalJob>(&bytes) else {
+                continue;
+            };
             let st: JobStatusFile = std::fs::read(self.paths.status_of(&job.id))
                 .ok()
                 .and_then(|b| serde_json::from_slice(&b).ok())
                 .unwrap_or_else(|| {
                     self.dirty.insert(id);
-                    job.indices.iter().map(|i| (*i, ElementState::Pending)).collect()
+                    job.indices
+                        .iter()
+                        .map(|i| (*i, ElementState::Pending))
+                        .collect()
                 });
             self.states.insert(id, st);
             self.jobs.insert(id, job);
@@ -166,11 +189,17 @@ impl Executor {
 
     fn cancels(&mut self) {
         let dir = self.paths.cancel();
-        let Ok(rd) = std::fs::read_dir(&dir) else { return };
+        let Ok(rd) = std::fs::read_dir(&dir) else {
+            return;
+        };
         for e in rd.flatten() {
             let name = e.file_name().to_string_lossy().into_owned();
-            let Some((job, idx)) = name.split_once('_') else { continue };
-            let (Ok(job), Ok(idx)) = (job.parse::<u64>(), idx.parse::<usize>()) else { continue };
+            let Some((job, idx)) = name.split_once('_') else {
+                continue;
+            };
+            let (Ok(job), Ok(idx)) = (job.parse::<u64>(), idx.parse::<usize>()) else {
+                continue;
+            };
             if !self.jobs.contains_key(&job) {
                 // Not read yet (or never existed): keep the request for later.
                 if !self.paths.job(&job.to_string()).exists() {
@@ -249,7 +278,9 @@ impl Executor {
     /// yet, None never.
     fn ready(&self, job: &LocalJob, idx: usize) -> Option<bool> {
         for (dep, corr) in &job.after {
-            let Ok(dep) = dep.parse::<u64>() else { continue };
+            let Ok(dep) = dep.parse::<u64>() else {
+                continue;
+            };
             let Some(st) = self.states.get(&dep) else {
                 if self.paths.job(&dep.to_string()).exists() {
                     return Some(false);
@@ -284,7 +315,10 @@ impl Executor {
                 }
                 match self.ready(&job, idx) {
                     None => {
-                        self.states.get_mut(&id).unwrap().insert(idx, ElementState::DependencyFailed);
+                        self.states
+                            .get_mut(&id)
+                            .unwrap()
+                            .insert(idx, ElementState::DependencyFailed);
                         self.dirty.insert(id);
                         continue;
                     }
@@ -311,7 +345,10 @@ impl Executor {
                 );
                 used += cpus;
                 job_running += 1;
-                self.states.get_mut(&id).unwrap().insert(idx, ElementState::Running { pid });
+                self.states
+                    .get_mut(&id)
+                    .unwrap()
+                    .insert(idx, ElementState::Running { pid });
                 self.dirty.insert(id);
             }
         }
@@ -319,7 +356,10 @@ impl Executor {
     }
 
     fn stop_all(&mut self) {
-        tracing::warn!("local executor interrupted: stopping {} running tasks", self.running.len());
+        tracing::warn!(
+            "local executor interrupted: stopping {} running tasks",
+            self.running.len()
+        );
         for r in self.running.values_mut() {
             signal_group(r.child.id() as i32, libc::SIGTERM);
         }

@@ -37,8 +37,11 @@ printf '{"time":"%s","host":"%s","job":"%s","attempt":%s,"pid":%s}\n' \
 sig=
 child=
 on_signal() {
-  [ -n "$sig" ] || sig=$1
-  [ -n "$child" ] && kill -"$1" "$child" 2>/dev/null
+  [ -n "$sig" ] && return
+  sig=$1
+  # The whole process group: the task's own children too (a shell waiting for
+  # a foreground command would otherwise defer the signal until it ends).
+  kill -"$1" 0 2>/dev/null || { [ -n "$child" ] && kill -"$1" "$child" 2>/dev/null; }
 }
 for s in TERM INT HUP USR1 USR2 XCPU; do trap "on_signal $s" "$s"; done
 bash task.sh &
@@ -108,7 +111,10 @@ fn shell_quote(value: &tera::Value, _: &HashMap<String, tera::Value>) -> tera::R
         tera::Value::String(s) => s.clone(),
         other => other.to_string(),
     };
-    Ok(tera::Value::String(format!("'{}'", s.replace('\'', r"'\''"))))
+    Ok(tera::Value::String(format!(
+        "'{}'",
+        s.replace('\'', r"'\''")
+    )))
 }
 
 /// Renders the batch script of `sub` for scheduler `kind` with `template` (the

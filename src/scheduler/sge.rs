@@ -80,7 +80,11 @@ pub fn parse_qstat(out: &str) -> Vec<(String, JobStatus)> {
         // Running tasks have a queue column; pending ones do not, so the task
         // field is the last one when it looks like a task list.
         let last = f[f.len() - 1];
-        let tasks = if f.len() >= 9 && last.chars().all(|c| c.is_ascii_digit() || ",-:".contains(c)) {
+        let tasks = if f.len() >= 9
+            && last
+                .chars()
+                .all(|c| c.is_ascii_digit() || ",-:".contains(c))
+        {
             expand_tasks(last)
         } else {
             vec![]
@@ -172,7 +176,13 @@ impl Scheduler for Sge {
         args.push(sub.script.display().to_string());
         let out = self.runner.run("qsub", &args)?;
         // -terse prints `123` or, for arrays, `123.1-5:1`.
-        let id = out.stdout.trim().split('.').next().unwrap_or("").to_string();
+        let id = out
+            .stdout
+            .trim()
+            .split('.')
+            .next()
+            .unwrap_or("")
+            .to_string();
         if id.is_empty() || !id.chars().all(|c| c.is_ascii_digit()) {
             return Err(SchedulerError::Parse {
                 command: "qsub -terse".into(),
@@ -212,7 +222,9 @@ impl Scheduler for Sge {
             Err(e) => return Err(e.into()),
         };
         for (id, _, st) in parse_qacct(&acct) {
-            if wanted.contains(id.split('.').next().unwrap_or("")) && !result.elements.contains_key(&id) {
+            if wanted.contains(id.split('.').next().unwrap_or(""))
+                && !result.elements.contains_key(&id)
+            {
                 result.elements.insert(id, st);
             }
         }

@@ -30,7 +30,11 @@ impl Slurm {
 /// 0`) onto legwork's vocabulary. The 24 states are those listed in the squeue
 /// manual's JOB STATE CODES section.
 pub fn map_state(s: &str) -> QueueState {
-    let word = s.split_whitespace().next().unwrap_or("").trim_end_matches('+');
+    let word = s
+        .split_whitespace()
+        .next()
+        .unwrap_or("")
+        .trim_end_matches('+');
     match word {
         "PENDING" | "PD" => QueueState::Pending,
         "CONFIGURING" | "CF" => QueueState::Pending,
@@ -213,7 +217,9 @@ impl Scheduler for Slurm {
                     }
                 }
                 Err(RunError::Failed { stderr, .. }) => {
-                    tracing::info!("sacct unavailable ({stderr}); using task markers for ended jobs");
+                    tracing::info!(
+                        "sacct unavailable ({stderr}); using task markers for ended jobs"
+                    );
                     self.accounting = Some(false);
                 }
                 Err(e) => return Err(e.into()),
@@ -273,7 +279,8 @@ impl Scheduler for Slurm {
                 Ok(_) => {}
                 // Elements that already ended are not an error to the user.
                 Err(RunError::Failed { ref stderr, .. })
-                    if stderr.contains("already completing") || stderr.contains("Invalid job id") => {}
+                    if stderr.contains("already completing")
+                        || stderr.contains("Invalid job id") => {}
                 Err(e) => return Err(e.into()),
             }
         }
@@ -288,10 +295,30 @@ mod tests {
     #[test]
     fn every_documented_state_maps_to_something_known() {
         for s in [
-            "BOOT_FAIL", "CANCELLED", "COMPLETED", "CONFIGURING", "COMPLETING", "DEADLINE",
-            "FAILED", "NODE_FAIL", "OUT_OF_MEMORY", "PENDING", "PREEMPTED", "RUNNING",
-            "RESV_DEL_HOLD", "REQUEUE_FED", "REQUEUE_HOLD", "REQUEUED", "RESIZING", "REVOKED",
-            "SIGNALING", "SPECIAL_EXIT", "STAGE_OUT", "STOPPED", "SUSPENDED", "TIMEOUT",
+            "BOOT_FAIL",
+            "CANCELLED",
+            "COMPLETED",
+            "CONFIGURING",
+            "COMPLETING",
+            "DEADLINE",
+            "FAILED",
+            "NODE_FAIL",
+            "OUT_OF_MEMORY",
+            "PENDING",
+            "PREEMPTED",
+            "RUNNING",
+            "RESV_DEL_HOLD",
+            "REQUEUE_FED",
+            "REQUEUE_HOLD",
+            "REQUEUED",
+            "RESIZING",
+            "REVOKED",
+            "SIGNALING",
+            "SPECIAL_EXIT",
+            "STAGE_OUT",
+            "STOPPED",
+            "SUSPENDED",
+            "TIMEOUT",
         ] {
             assert!(!matches!(map_state(s), QueueState::Other(_)), "{s}");
         }
@@ -301,7 +328,9 @@ mod tests {
 
     #[test]
     fn squeue_dependency_never_satisfied_is_its_own_state() {
-        let v = parse_squeue("12_3|lw.c.b.s1|PENDING|DependencyNeverSatisfied\n12_4|lw.c.b.s1|RUNNING|None\n");
+        let v = parse_squeue(
+            "12_3|lw.c.b.s1|PENDING|DependencyNeverSatisfied\n12_4|lw.c.b.s1|RUNNING|None\n",
+        );
         assert_eq!(v[0].2.state, QueueState::DependencyNeverSatisfied);
         assert_eq!(v[1].2.state, QueueState::Running);
         assert_eq!(v[1].2.reason, None);

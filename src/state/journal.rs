@@ -125,7 +125,10 @@ impl Journal {
             Ok(bytes) => match serde_json::from_slice::<Snapshot>(&bytes) {
                 Ok(s) => (s.state, s.journal_bytes),
                 Err(e) => {
-                    tracing::warn!("{}: unreadable snapshot ({e}); replaying the whole journal", snapshot.display());
+                    tracing::warn!(
+                        "{}: unreadable snapshot ({e}); replaying the whole journal",
+                        snapshot.display()
+                    );
                     (StateData::default(), 0)
                 }
             },
@@ -238,7 +241,9 @@ impl Journal {
         };
         let bytes = serde_json::to_vec(&snap).expect("serialisable");
         crate::scheduler::script::write_atomic(&self.snapshot, &bytes).map_err(|e| match e {
-            crate::scheduler::SchedulerError::Io { path, source } => JournalError::Io { path, source },
+            crate::scheduler::SchedulerError::Io { path, source } => {
+                JournalError::Io { path, source }
+            }
             other => JournalError::Io {
                 path: self.snapshot.clone(),
                 source: std::io::Error::other(other.to_string()),

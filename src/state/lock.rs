@@ -103,9 +103,9 @@ impl CampaignLock {
             let here = hostname();
             // The flock says free, but the file may name a live holder the flock
             // could not see (another NFS client, or a broken flock).
-            let live_other = recorded.as_ref().filter(|h| {
-                h.host != here || (h.pid != me && pid_alive(h.pid))
-            });
+            let live_other = recorded
+                .as_ref()
+                .filter(|h| h.host != here || (h.pid != me && pid_alive(h.pid)));
             if got && live_other.is_none() {
                 let holder = Holder {
                     pid: me,
@@ -165,7 +165,10 @@ mod tests {
         // another process. Here the flock conflicts.
         match err {
             Err(LockError::Busy { holder, .. }) => {
-                assert!(holder.contains(&format!("pid {}", std::process::id())), "{holder}")
+                assert!(
+                    holder.contains(&format!("pid {}", std::process::id())),
+                    "{holder}"
+                )
             }
             Ok(_) => panic!("the lock was taken twice"),
             Err(e) => panic!("{e}"),
@@ -181,7 +184,11 @@ mod tests {
             since: "2020-01-01T00:00:00Z".into(),
             command: "legwork submit x".into(),
         };
-        std::fs::write(d.path().join("lock"), serde_json::to_string(&stale).unwrap()).unwrap();
+        std::fs::write(
+            d.path().join("lock"),
+            serde_json::to_string(&stale).unwrap(),
+        )
+        .unwrap();
         let l = CampaignLock::acquire(d.path(), Duration::ZERO).unwrap();
         let text = std::fs::read_to_string(l.path()).unwrap();
         assert!(text.contains(&format!("\"pid\":{}", std::process::id())));
@@ -198,7 +205,11 @@ mod tests {
             since: "2026-01-01T00:00:00Z".into(),
             command: "legwork watch c.yaml".into(),
         };
-        std::fs::write(d.path().join("lock"), serde_json::to_string(&other).unwrap()).unwrap();
+        std::fs::write(
+            d.path().join("lock"),
+            serde_json::to_string(&other).unwrap(),
+        )
+        .unwrap();
         let err = CampaignLock::acquire(d.path(), Duration::ZERO).unwrap_err();
         assert!(err.to_string().contains("some-other-login-node"), "{err}");
     }

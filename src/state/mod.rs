@@ -22,7 +22,9 @@ pub use ops::{
     cancel, poll, reconcile, rescan, resume, submit_ready, watch_until_settled, CancelSummary,
     PollSummary, ResumeSummary, Settled, SubmitSummary,
 };
-pub use record::{FailureKind, SubmissionRecord, SubmissionStatus, SubmittedTask, TaskRecord, TaskState};
+pub use record::{
+    FailureKind, SubmissionRecord, SubmissionStatus, SubmittedTask, TaskRecord, TaskState,
+};
 pub use selection::Selection;
 pub use summary::Summary;
 

@@ -145,7 +145,12 @@ pub fn submit_ready(
 ) -> Result<SubmitSummary, StateError> {
     reconcile(state, sched)?;
     let mut summary = SubmitSummary::default();
-    let live = state.data.tasks.values().filter(|r| r.state.is_live()).count();
+    let live = state
+        .data
+        .tasks
+        .values()
+        .filter(|r| r.state.is_live())
+        .count();
     let mut budget = if ctx.config.max_queued == 0 {
         usize::MAX
     } else {
@@ -307,7 +312,9 @@ pub fn poll(
     let mut jobs: BTreeSet<String> = BTreeSet::new();
     let mut index_of: HashMap<u64, HashMap<&str, usize>> = HashMap::new();
     for (ti, task) in state.plan.tasks.iter().enumerate() {
-        let Some(r) = state.data.tasks.get(&task.id) else { continue };
+        let Some(r) = state.data.tasks.get(&task.id) else {
+            continue;
+        };
         if !r.state.is_live() {
             continue;
         }
@@ -318,9 +325,9 @@ pub fn poll(
         let s = &state.data.submissions[&sub];
         let element = match s.job.as_deref() {
             Some(job) if !job.is_empty() => {
-                let map = index_of
-                    .entry(sub)
-                    .or_insert_with(|| s.tasks.iter().map(|t| (t.task.as_str(), t.index)).collect());
+                let map = index_of.entry(sub).or_insert_with(|| {
+                    s.tasks.iter().map(|t| (t.task.as_str(), t.index)).collect()
+                });
                 jobs.insert(job.to_string());
                 map.get(task.id.as_str()).map(|&i| sched.element_id(job, i))
             }
@@ -587,7 +594,10 @@ pub fn rescan(
                     .flatten();
                 (Some(st), *attempt)
             }
-            None => (None, markers::exited_any(&dir).map(|e| e.attempt).unwrap_or(0)),
+            None => (
+                None,
+                markers::exited_any(&dir).map(|e| e.attempt).unwrap_or(0),
+            ),
         };
         let (new, reason, kind) = match status {
             Some(st) => match classify(st, &dir, attempt, walltime, &check) {

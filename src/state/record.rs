@@ -3,7 +3,9 @@
 use serde::{Deserialize, Serialize};
 
 /// The state of a task.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord, Default, Serialize, Deserialize)]
+#[derive(
+    Debug, Clone, Copy, PartialEq, Eq, Hash, PartialOrd, Ord, Default, Serialize, Deserialize,
+)]
 #[serde(rename_all = "lowercase")]
 pub enum TaskState {
     /// Not submitted (or returned to the plan after a dependency failed).

@@ -48,7 +48,13 @@ impl Counts {
     }
     /// All tasks.
     pub fn total(&self) -> usize {
-        self.planned + self.queued + self.running + self.done + self.failed + self.lost + self.cancelled
+        self.planned
+            + self.queued
+            + self.running
+            + self.done
+            + self.failed
+            + self.lost
+            + self.cancelled
     }
     /// Queued or running.
     pub fn live(&self) -> usize {
@@ -122,7 +128,11 @@ impl Summary {
             .collect();
         s.reasons = reasons
             .into_iter()
-            .map(|((kind, reason), tasks)| ReasonGroup { kind, reason, tasks })
+            .map(|((kind, reason), tasks)| ReasonGroup {
+                kind,
+                reason,
+                tasks,
+            })
             .collect();
         s
     }

@@ -72,9 +72,10 @@ pub(crate) fn classify(
                     format!("walltime {} exceeded", hms(walltime_s)),
                     FailureKind::Walltime,
                 ),
-                (Some(QueueState::OutOfMemory), _) => {
-                    failed("out of memory (killed by the scheduler)".into(), FailureKind::OutOfMemory)
-                }
+                (Some(QueueState::OutOfMemory), _) => failed(
+                    "out of memory (killed by the scheduler)".into(),
+                    FailureKind::OutOfMemory,
+                ),
                 (Some(QueueState::NodeFail | QueueState::BootFail), _) => {
                     failed("node failure".into(), FailureKind::NodeFailure)
                 }
@@ -105,7 +106,9 @@ pub(crate) fn classify(
                 (_, None) => failed(
                     format!(
                         "exit code {}; see the job's error log under .legwork/logs/",
-                        ex.code.map(|c| c.to_string()).unwrap_or_else(|| "unknown".into())
+                        ex.code
+                            .map(|c| c.to_string())
+                            .unwrap_or_else(|| "unknown".into())
                     ),
                     FailureKind::ExitCode,
                 ),

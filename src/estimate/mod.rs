@@ -1,5 +1,21 @@
-//! Free-energy estimators (TI, EXP, BAR, MBAR), overlap, equilibration and decorrelation. Pure numerics.
+//! Free-energy estimators (TI, EXP, BAR, MBAR), overlap, equilibration and
+//! decorrelation. Pure numerics: slices and samples in, values out, no I/O.
 
+pub mod bar;
+pub mod correlation;
+mod error;
+pub mod exp;
+mod fastexp;
+mod leg;
+pub mod mbar;
 pub mod options;
+mod result;
+pub mod ti;
 
-pub use options::{AnalysisOptions, Method};
+pub use error::EstimateError;
+pub use leg::{dudl_series, energy_series, estimate_leg};
+pub use options::{AnalysisOptions, Equilibration, EstimateOptions, Method, Subsample};
+pub use result::{
+    Convergence, ConvergencePoint, DeltaG, LegEstimate, MbarDetails, PairEstimate, TiPoint,
+    WindowDiagnostics,
+};

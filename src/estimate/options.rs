@@ -113,3 +113,92 @@ impl<'de> Deserialize<'de> for Equilibration {
         }
     }
 }
+
+impl Method {
+    /// Every method, in the order tables list them.
+    pub const ALL: [Method; 6] = [
+        Method::Mbar,
+        Method::Bar,
+        Method::Ti,
+        Method::TiSpline,
+        Method::ExpForward,
+        Method::ExpReverse,
+    ];
+
+    /// The name used on the command line and in JSON.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            Method::Ti => "ti",
+            Method::TiSpline => "ti_spline",
+            Method::ExpForward => "exp_forward",
+            Method::ExpReverse => "exp_reverse",
+            Method::Bar => "bar",
+            Method::Mbar => "mbar",
+        }
+    }
+
+    /// Whether the method uses dU/dλ (else the reduced energies).
+    pub fn uses_dudl(self) -> bool {
+        matches!(self, Method::Ti | Method::TiSpline)
+    }
+}
+
+impl std::fmt::Display for Method {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(self.as_str())
+    }
+}
+
+impl std::str::FromStr for Method {
+    type Err = String;
+    fn from_str(s: &str) -> Result<Self, Self::Err> {
+        Method::ALL
+            .into_iter()
+            .find(|m| m.as_str() == s.trim())
+            .ok_or_else(|| {
+                format!("unknown method '{s}': use ti, ti_spline, exp_forward, exp_reverse, bar, mbar or all")
+            })
+    }
+}
+
+/// Everything [`crate::estimate::estimate_leg`] needs to know.
+#[derive(Debug, Clone, PartialEq)]
+pub struct EstimateOptions {
+    /// The estimators to run.
+    pub methods: Vec<Method>,
+    /// Equilibration handling.
+    pub equilibration: Equilibration,
+    /// Subsampling.
+    pub subsample: Subsample,
+    /// Whether to compute forward/reverse convergence series.
+    pub convergence: bool,
+    /// Fewer uncorrelated samples than this in a window draws a warning (common
+    /// practice, no source).
+    pub min_uncorrelated: usize,
+    /// An adjacent overlap below this draws a warning (0.03: common practice, no source).
+    pub min_overlap: f64,
+}
+
+impl Default for EstimateOptions {
+    fn default() -> Self {
+        EstimateOptions {
+            methods: Method::ALL.to_vec(),
+            equilibration: Equilibration::Auto,
+            subsample: Subsample::Auto,
+            convergence: true,
+            min_uncorrelated: 50,
+            min_overlap: 0.03,
+        }
+    }
+}
+
+impl EstimateOptions {
+    /// Every method, with the campaign's equilibration and subsampling.
+    pub fn from_analysis(a: &AnalysisOptions) -> Self {
+        EstimateOptions {
+            equilibration: a.equilibration,
+            subsample: a.subsample,
+            ..Default::default()
+        }
+    }
+}

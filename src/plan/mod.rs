@@ -4,7 +4,12 @@
 //! Expansion is pure: a validated campaign in, a [`Plan`] out, no I/O. The same plan
 //! drives `expand`, `submit`, `status` and `collect`.
 
+mod expand;
+
+pub use expand::{expand, task_seed, window_label};
+
 use serde::{Deserialize, Serialize};
+use std::collections::HashMap;
 use std::path::PathBuf;
 
 /// Index of a task in [`Plan::tasks`].
@@ -120,4 +125,87 @@ pub struct Plan {
     pub tasks: Vec<Task>,
     /// Every batch, in dependency order (a batch comes after those it waits for).
     pub batches: Vec<Batch>,
+    /// The λ states of every leg, in the campaign's leg order.
+    #[serde(default)]
+    pub legs: Vec<LegStates>,
+    /// The stage whose output is analysed (see `Campaign::analysed_stage`).
+    #[serde(default)]
+    pub analysed_stage: Option<String>,
+    /// For every subject × leg × replica, the analysed stage's window tasks in
+    /// window order (what `collect` reads).
+    #[serde(default)]
+    pub windows: Vec<WindowSet>,
+    /// Task id → index; rebuilt by [`Plan::reindex`] after deserialising.
+    #[serde(skip)]
+    pub by_id: HashMap<String, TaskIndex>,
+}
+
+/// The λ states of one leg.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct LegStates {
+    /// Leg name.
+    pub name: String,
+    /// Component names (`lambda` for a single-component leg).
+    pub components: Vec<String>,
+    /// The primary λ of every state.
+    pub lambdas: Vec<f64>,
+    /// `states[k][c]`: component `c` at state `k`.
+    pub states: Vec<Vec<f64>>,
+}
+
+/// The analysed stage's windows of one subject × leg × replica.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct WindowSet {
+    /// The edge or ligand.
+    pub subject: Subject,
+    /// Leg name.
+    pub leg: String,
+    /// Replica, from 1.
+    pub replica: u32,
+    /// One task per window, in window order.
+    pub tasks: Vec<TaskIndex>,
+}
+
+impl Plan {
+    /// The index of the task with this id.
+    pub fn task_by_id(&self, id: &str) -> Option<TaskIndex> {
+        if self.by_id.is_empty() && !self.tasks.is_empty() {
+            return self.tasks.iter().position(|t| t.id == id);
+        }
+        self.by_id.get(id).copied()
+    }
+
+    /// Rebuilds the id index (needed after deserialising a plan).
+    pub fn reindex(&mut self) {
+        self.by_id = self
+            .tasks
+            .iter()
+            .enumerate()
+            .map(|(i, t)| (t.id.clone(), i))
+            .collect();
+    }
+
+    /// The λ states of a leg.
+    pub fn leg(&self, name: &str) -> Option<&LegStates> {
+        self.legs.iter().find(|l| l.name == name)
+    }
+
+    /// The analysed windows of one subject × leg × replica.
+    pub fn windows_of(&self, subject: &Subject, leg: &str, replica: u32) -> Option<&WindowSet> {
+        self.windows
+            .iter()
+            .find(|w| &w.subject == subject && w.leg == leg && w.replica == replica)
+    }
+
+    /// How many tasks each stage has, in stage order of first appearance.
+    pub fn tasks_per_stage(&self) -> Vec<(String, usize)> {
+        let mut out: Vec<(String, usize)> = Vec::new();
+        for b in &self.batches {
+            match out.iter_mut().find(|(s, _)| *s == b.stage) {
+                Some((_, n)) => *n += b.tasks.len(),
+                None => out.push((b.stage.clone(), b.tasks.len())),
+            }
+        }
+        out
+    }
 }

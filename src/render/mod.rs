@@ -1,1 +1,698 @@
 //! Rendering the plan into the tree: tera context, confined, atomic, idempotent writes.
+//!
+//! Each task directory gets one file, `task.sh`, rendered from its stage's
+//! template. Writes never leave the campaign root, go through a temporary file
+//! and a rename, and skip files whose content would not change. A file the user
+//! edited since legwork wrote it is left alone (and listed) unless forced. What
+//! was written is recorded in `<root>/.legwork/render-manifest.tsv`.
+
+pub mod context;
+pub mod filters;
+pub mod manifest;
+
+pub use context::{task_context, ContextBuilder};
+pub use filters::{quote_word, register_filters};
+
+use crate::campaign::{templates, Campaign, Diagnostic};
+use crate::plan::{Plan, TaskIndex};
+use manifest::{Entry, Manifest};
+use rayon::prelude::*;
+use std::io::Write;
+use std::os::unix::fs::OpenOptionsExt;
+use std::path::{Component, Path, PathBuf};
+
+/// The file render writes in each task directory.
+pub const TASK_FILE: &str = "task.sh";
+
+/// Options of [`write_tree`].
+#[derive(Debug, Clone, Copy, Default)]
+pub struct RenderOptions {
+    /// Overwrite files the user edited.
+    pub force: bool,
+    /// Decide everything, write nothing.
+    pub dry_run: bool,
+    /// Show a progress bar on standard error.
+    pub progress: bool,
+}
+
+/// What [`write_tree`] did (or, for a dry run, would do).
+#[derive(Debug, Clone, Default, PartialEq, serde::Serialize)]
+pub struct TreeReport {
+    /// Files written (new or changed).
+    pub written: usize,
+    /// Files already up to date.
+    pub unchanged: usize,
+    /// User-edited files left as they are (relative to the root); `--force`
+    /// overwrites them.
+    pub protected: Vec<PathBuf>,
+    /// Whether anything was actually written.
+    pub dry_run: bool,
+}
+
+/// Rendering failed; nothing was written.
+#[derive(Debug, thiserror::Error)]
+pub enum RenderError {
+    /// The templates do not load.
+    #[error("templates do not load:\n{}", .0.iter().map(|d| d.to_string()).collect::<Vec<_>>().join("\n"))]
+    Templates(Vec<Diagnostic>),
+    /// A template failed for one task (e.g. an undefined variable).
+    #[error("task {task}: template {template} failed: {message}\n  hint: every variable the template uses must be in the context (see the README's template section), or guarded with `is defined`")]
+    Template {
+        /// task id
+        task: String,
+        /// template name
+        template: String,
+        /// what tera said
+        message: String,
+    },
+    /// A path would leave the campaign root.
+    #[error("{0} would be written outside the campaign root; refusing")]
+    Escape(PathBuf),
+    /// A write failed.
+    #[error("cannot write {path}: {source}")]
+    Io {
+        /// the file
+        path: PathBuf,
+        /// why
+        source: std::io::Error,
+    },
+}
+
+/// `root/rel` if `rel` only goes down (no `..`, no absolute part, no hidden part).
+pub fn confined(root: &Path, rel: &Path) -> Result<PathBuf, RenderError> {
+    let ok = rel.components().all(|c| match c {
+        Component::Normal(s) => !s.to_string_lossy().starts_with('.'),
+        _ => false,
+    }) && rel.components().next().is_some();
+    if ok && root.is_absolute() {
+        Ok(root.join(rel))
+    } else {
+        Err(RenderError::Escape(rel.to_path_buf()))
+    }
+}
+
+enum Action {
+    Unchanged,
+    /// Replace an existing file of ours (temp + rename).
+    Write(String),
+    /// Create a file believed absent; see [`create_new`].
+    Create(String),
+    Protected,
+    Adopt(Entry),
+}
+
+/// What a write did.
+enum Outcome {
+    Written(String, Entry),
+    Adopted(String, Entry),
+    Protected(String),
+}
+
+struct Decision {
+    rel: String,
+    action: Action,
+    attempt: u32,
+    restart: bool,
+}
+
+fn entry_matches(meta: &std::fs::Metadata, e: &Entry) -> bool {
+    meta.len() == e.size && manifest::mtime_ns(meta) == e.mtime_ns
+}
+
+fn disk_hash(path: &Path) -> Option<String> {
+    std::fs::read(path).ok().map(|b| manifest::hash(&b))
+}
+
+fn fingerprint(campaign: &Campaign) -> String {
+    let lw = context::legwork_value();
+    format!(
+        "{}:{}",
+        campaign.fingerprint,
+        manifest::hash(lw.to_string().as_bytes())
+    )
+}
+
+fn render_one(
+    tera: &tera::Tera,
+    builder: &ContextBuilder,
+    campaign: &Campaign,
+    plan: &Plan,
+    i: TaskIndex,
+    attempt: u32,
+    restart: bool,
+) -> Result<String, RenderError> {
+    let task = &plan.tasks[i];
+    let stage = campaign
+        .stage(&task.stage)
+        .expect("plan stages come from the campaign");
+    let ctx = builder.context(i, attempt, restart);
+    tera.render(&stage.template, &ctx)
+        .map_err(|e| RenderError::Template {
+            task: task.id.clone(),
+            template: stage.template_path.display().to_string(),
+            message: templates::chain_text(&e),
+        })
+}
+
+fn decide(
+    campaign: &Campaign,
+    plan: &Plan,
+    i: TaskIndex,
+    man: &Manifest,
+    flags: Flags,
+    render: &dyn Fn(TaskIndex, u32, bool) -> Result<String, RenderError>,
+) -> Result<Decision, RenderError> {
+    let Flags {
+        fast,
+        force,
+        dry_run,
+        crashed,
+    } = flags;
+    let task = &plan.tasks[i];
+    let rel_path = task.dir.join(TASK_FILE);
+    let abs = confined(&campaign.root, &rel_path)?;
+    let rel = rel_path.to_string_lossy().into_owned();
+    let entry = man.entries.get(&rel);
+    let (attempt, restart) = entry.map_or((1, false), |e| (e.attempt, e.restart));
+    if entry.is_none() && !dry_run {
+        // Not ours yet: try to create it, and look at what is there only if
+        // something is (saves a stat per file on a first expand).
+        let content = render(i, attempt, restart)?;
+        return Ok(Decision {
+            rel,
+            action: Action::Create(content),
+            attempt,
+            restart,
+        });
+    }
+    let meta = std::fs::symlink_metadata(&abs).ok();
+    if let Some(m) = &meta {
+        if !m.file_type().is_file() {
+            return Err(RenderError::Escape(rel_path));
+        }
+    }
+    let ours = match (&meta, entry) {
+        (Some(m), Some(e)) if entry_matches(m, e) => Some(true),
+        _ => None,
+    };
+    if fast && ours == Some(true) {
+        return Ok(Decision {
+            rel,
+            action: Action::Unchanged,
+            attempt,
+            restart,
+        });
+    }
+    let content = render(i, attempt, restart)?;
+    let new_hash = manifest::hash(content.as_bytes());
+    let action = match (&meta, entry) {
+        (None, _) => Action::Write(content),
+        (Some(_), Some(e)) => {
+            let ours = ours == Some(true) || disk_hash(&abs).as_deref() == Some(e.hash.as_str());
+            if ours {
+                if new_hash == e.hash {
+                    Action::Unchanged
+                } else {
+                    Action::Write(content)
+                }
+            } else if disk_hash(&abs).as_deref() == Some(new_hash.as_str()) {
+                adopt(&abs, new_hash, attempt, restart)
+            } else if force {
+                Action::Write(content)
+            } else {
+                Action::Protected
+            }
+        }
+        (Some(_), None) => {
+            if crashed {
+                Action::Write(content)
+            } else if disk_hash(&abs).as_deref() == Some(new_hash.as_str()) {
+                adopt(&abs, new_hash, attempt, restart)
+            } else if force {
+                Action::Write(content)
+            } else {
+                Action::Protected
+            }
+        }
+    };
+    Ok(Decision {
+        rel,
+        action,
+        attempt,
+        restart,
+    })
+}
+
+fn adopt(abs: &Path, hash: String, attempt: u32, restart: bool) -> Action {
+    match std::fs::metadata(abs) {
+        Ok(m) => Action::Adopt(Entry {
+            hash,
+            size: m.len(),
+            mtime_ns: manifest::mtime_ns(&m),
+            attempt,
+            restart,
+        }),
+        Err(_) => Action::Unchanged,
+    }
+}
+
+/// How [`decide`] treats files.
+#[derive(Clone, Copy)]
+struct Flags {
+    fast: bool,
+    force: bool,
+    dry_run: bool,
+    /// A previous expand stopped while writing: files on disk without a manifest
+    /// entry may be its half-written ones, so they are ours to replace.
+    crashed: bool,
+}
+
+/// Where an expand records that it is writing; present at the start of the next
+/// one only if that one stopped half-way.
+fn in_progress_path(root: &Path) -> PathBuf {
+    root.join(".legwork").join("render-in-progress")
+}
+
+/// Creates a task file that did not exist, writing it in place (no reader can be
+/// looking at a file that did not exist; a crash half-way is covered by the
+/// in-progress marker). If something is already there, decides as for an
+/// existing file: adopt it when equal, replace it when forced or left by a crashed
+/// run, else protect it.
+fn create_new(
+    root: &Path,
+    d: &Decision,
+    content: &str,
+    force: bool,
+    crashed: bool,
+) -> Result<Outcome, RenderError> {
+    let path = root.join(&d.rel);
+    let io = |source| RenderError::Io {
+        path: path.clone(),
+        source,
+    };
+    let dir = path.parent().expect("task files have a directory");
+    std::fs::create_dir_all(dir).map_err(io)?;
+    match std::fs::OpenOptions::new()
+        .write(true)
+        .create_new(true)
+        .mode(0o755)
+        .open(&path)
+    {
+        Ok(mut f) => {
+            f.write_all(content.as_bytes()).map_err(io)?;
+            let meta = f.metadata().map_err(io)?;
+            Ok(Outcome::Written(
+                d.rel.clone(),
+                Entry {
+                    hash: manifest::hash(content.as_bytes()),
+                    size: meta.len(),
+                    mtime_ns: manifest::mtime_ns(&meta),
+                    attempt: d.attempt,
+                    restart: d.restart,
+                },
+            ))
+        }
+        Err(e) if e.kind() == std::io::ErrorKind::AlreadyExists => {
+            let m = std::fs::symlink_metadata(&path).map_err(io)?;
+            if !m.file_type().is_file() {
+                return Err(RenderError::Escape(PathBuf::from(&d.rel)));
+            }
+            let new_hash = manifest::hash(content.as_bytes());
+            if !crashed && disk_hash(&path).as_deref() == Some(new_hash.as_str()) {
+                return Ok(match adopt(&path, new_hash, d.attempt, d.restart) {
+                    Action::Adopt(e) => Outcome::Adopted(d.rel.clone(), e),
+                    _ => Outcome::Protected(d.rel.clone()),
+                });
+            }
+            if force || crashed {
+                return write_atomic(&path, content, d.attempt, d.restart)
+                    .map(|e| Outcome::Written(d.rel.clone(), e));
+            }
+            Ok(Outcome::Protected(d.rel.clone()))
+        }
+        Err(e) => Err(io(e)),
+    }
+}
+
+/// Writes `content` to `path` atomically: a temporary file beside it, mode 0755,
+/// then a rename. Returns the manifest entry.
+fn write_atomic(
+    path: &Path,
+    content: &str,
+    attempt: u32,
+    restart: bool,
+) -> Result<Entry, RenderError> {
+    let io = |source| RenderError::Io {
+        path: path.to_path_buf(),
+        source,
+    };
+    let dir = path.parent().expect("task files have a directory");
+    std::fs::create_dir_all(dir).map_err(io)?;
+    let tmp = dir.join(format!(".{TASK_FILE}.tmp-{}", std::process::id()));
+    // Executable for its owner and readable by all (the umask may take more away).
+    let mut f = std::fs::OpenOptions::new()
+        .write(true)
+        .create(true)
+        .truncate(true)
+        .mode(0o755)
+        .open(&tmp)
+        .map_err(io)?;
+    let res = (|| {
+        f.write_all(content.as_bytes())?;
+        let meta = f.metadata()?;
+        drop(f);
+        std::fs::rename(&tmp, path)?;
+        Ok::<_, std::io::Error>(meta)
+    })();
+    match res {
+        Ok(meta) => Ok(Entry {
+            hash: manifest::hash(content.as_bytes()),
+            size: meta.len(),
+            mtime_ns: manifest::mtime_ns(&meta),
+            attempt,
+            restart,
+        }),
+        Err(e) => {
+            let _ = std::fs::remove_file(&tmp);
+            Err(io(e))
+        }
+    }
+}
+
+fn progress_bar(show: bool, len: usize, msg: &'static str) -> indicatif::ProgressBar {
+    if !show {
+        return indicatif::ProgressBar::hidden();
+    }
+    let pb = indicatif::ProgressBar::new(len as u64);
+    pb.set_style(
+        indicatif::ProgressStyle::with_template("{msg:>9} [{bar:40}] {pos}/{len} {eta}")
+            .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar())
+            .progress_chars("=> "),
+    );
+    pb.set_message(msg);
+    pb
+}
+
+/// Which task files are exactly as the manifest recorded them (size and mtime),
+/// by one `fstatat` each relative to its batch's directory: a re-expand with
+/// unchanged inputs is mostly this, and short relative lookups are much cheaper
+/// than walking every absolute path.
+fn unchanged_by_stat(root: &Path, plan: &Plan, man: &Manifest) -> Vec<bool> {
+    use nix::fcntl::AtFlags;
+    use std::os::fd::AsRawFd;
+    let per_batch: Vec<Vec<(TaskIndex, bool)>> = plan
+        .batches
+        .par_iter()
+        .map(|b| {
+            let Some(&first) = b.tasks.first() else {
+                return Vec::new();
+            };
+            // The replica folder (`<subject>/<leg>/r<k>`) holds every task of the batch.
+            let base: PathBuf = plan.tasks[first].dir.components().take(3).collect();
+            let dir = std::fs::File::open(root.join(&base)).ok();
+            b.tasks
+                .iter()
+                .map(|&t| {
+                    let rel = plan.tasks[t].dir.join(TASK_FILE);
+                    let ok = (|| {
+                        let dir = dir.as_ref()?;
+                        let e = man.entries.get(rel.to_str()?)?;
+                        let below = rel.strip_prefix(&base).ok()?;
+                        let st = nix::sys::stat::fstatat(
+                            Some(dir.as_raw_fd()),
+                            below,
+                            AtFlags::AT_SYMLINK_NOFOLLOW,
+                        )
+                        .ok()?;
+                        let is_file = st.st_mode & libc::S_IFMT == libc::S_IFREG;
+                        let mtime = st.st_mtime as u64 * 1_000_000_000 + st.st_mtime_nsec as u64;
+                        Some(is_file && st.st_size as u64 == e.size && mtime == e.mtime_ns)
+                    })();
+                    (t, ok == Some(true))
+                })
+                .collect()
+        })
+        .collect();
+    let mut out = vec![false; plan.tasks.len()];
+    for (t, ok) in per_batch.into_iter().flatten() {
+        out[t] = ok;
+    }
+    out
+}
+
+/// A symbolic link among the upper levels of the tree (subject, leg, replica)
+/// could send writes outside the root: refuse it.
+fn refuse_symlinked_dirs(root: &Path, plan: &Plan) -> Result<(), RenderError> {
+    let mut seen = std::collections::HashSet::new();
+    for b in &plan.batches {
+        let Some(&t) = b.tasks.first() else { continue };
+        let mut rel = PathBuf::new();
+        for (depth, c) in plan.tasks[t].dir.components().enumerate() {
+            if depth >= 3 {
+                break;
+            }
+            rel.push(c);
+            if seen.insert(rel.clone()) {
+                if let Ok(m) = std::fs::symlink_metadata(root.join(&rel)) {
+                    if m.file_type().is_symlink() {
+                        return Err(RenderError::Escape(rel));
+                    }
+                }
+            }
+        }
+    }
+    Ok(())
+}
+
+/// Renders every task of the plan into the tree under the campaign root.
+///
+/// Every template is rendered before anything is written, so a template error
+/// leaves the tree as it was.
+pub fn write_tree(
+    campaign: &Campaign,
+    plan: &Plan,
+    opts: &RenderOptions,
+) -> Result<TreeReport, RenderError> {
+    if !campaign.root.is_absolute() {
+        return Err(RenderError::Escape(campaign.root.clone()));
+    }
+    let tera = templates::load_tera(campaign).map_err(RenderError::Templates)?;
+    refuse_symlinked_dirs(&campaign.root, plan)?;
+    let builder = ContextBuilder::for_rendering(campaign, plan);
+    let mut man = Manifest::load(&campaign.root);
+    let fp = fingerprint(campaign);
+    let fast = !opts.force && man.fingerprint == fp;
+    let crashed = in_progress_path(&campaign.root).exists();
+    let flags = Flags {
+        fast,
+        force: opts.force,
+        dry_run: opts.dry_run,
+        crashed,
+    };
+    let render = |i, a, r| render_one(&tera, &builder, campaign, plan, i, a, r);
+
+    let unchanged = if fast {
+        unchanged_by_stat(&campaign.root, plan, &man)
+    } else {
+        vec![false; plan.tasks.len()]
+    };
+    let pb = progress_bar(
+        opts.progress && plan.tasks.len() >= 200,
+        plan.tasks.len(),
+        "rendering",
+    );
+    let indices: Vec<TaskIndex> = (0..plan.tasks.len()).collect();
+    let decisions: Vec<Decision> = indices
+        .par_chunks(256)
+        .map(|chunk| {
+            let out = chunk
+                .iter()
+                .map(|&i| {
+                    if unchanged[i] {
+                        Ok(Decision {
+                            rel: String::new(),
+                            action: Action::Unchanged,
+                            attempt: 1,
+                            restart: false,
+                        })
+                    } else {
+                        decide(campaign, plan, i, &man, flags, &render)
+                    }
+                })
+                .collect::<Result<Vec<_>, _>>();
+            pb.inc(chunk.len() as u64);
+            out
+        })
+        .collect::<Result<Vec<Vec<_>>, _>>()?
+        .into_iter()
+        .flatten()
+        .collect();
+    pb.finish_and_clear();
+
+    let mut report = TreeReport {
+        dry_run: opts.dry_run,
+        ..Default::default()
+    };
+    let mut to_write: Vec<&Decision> = Vec::new();
+    let mut changed = man.fingerprint != fp;
+    for d in &decisions {
+        match &d.action {
+            Action::Unchanged => report.unchanged += 1,
+            Action::Adopt(e) => {
+                report.unchanged += 1;
+                if !opts.dry_run {
+                    man.entries.insert(d.rel.clone(), e.clone());
+                    changed = true;
+                }
+            }
+            Action::Protected => report.protected.push(PathBuf::from(&d.rel)),
+            Action::Write(_) | Action::Create(_) => to_write.push(d),
+        }
+    }
+    if opts.dry_run {
+        report.written = to_write.len();
+        return Ok(report);
+    }
+    let marker = in_progress_path(&campaign.root);
+    if !to_write.is_empty() {
+        let io = |source| RenderError::Io {
+            path: marker.clone(),
+            source,
+        };
+        std::fs::create_dir_all(marker.parent().expect("has a parent")).map_err(io)?;
+        std::fs::write(&marker, format!("{}\n", std::process::id())).map_err(io)?;
+    }
+    let pb = progress_bar(
+        opts.progress && to_write.len() >= 200,
+        to_write.len(),
+        "writing",
+    );
+    let results: Vec<Result<Outcome, RenderError>> = to_write
+        .par_chunks(128)
+        .flat_map_iter(|chunk| {
+            let out: Vec<_> = chunk
+                .iter()
+                .map(|d| match &d.action {
+                    Action::Create(c) => create_new(&campaign.root, d, c, opts.force, crashed),
+                    Action::Write(c) => {
+                        let abs = campaign.root.join(&d.rel);
+                        write_atomic(&abs, c, d.attempt, d.restart)
+                            .map(|e| Outcome::Written(d.rel.clone(), e))
+                    }
+                    _ => unreachable!("only writes are queued"),
+                })
+                .collect();
+            pb.inc(chunk.len() as u64);
+            out
+        })
+        .collect();
+    pb.finish_and_clear();
+    let mut first_err = None;
+    for r in results {
+        match r {
+            Ok(Outcome::Written(rel, e)) => {
+                report.written += 1;
+                man.entries.insert(rel, e);
+                changed = true;
+            }
+            Ok(Outcome::Adopted(rel, e)) => {
+                report.unchanged += 1;
+                man.entries.insert(rel, e);
+                changed = true;
+            }
+            Ok(Outcome::Protected(rel)) => report.protected.push(PathBuf::from(rel)),
+            Err(e) => {
+                first_err.get_or_insert(e);
+            }
+        }
+    }
+    report.protected.sort();
+    if first_err.is_none() {
+        man.fingerprint = fp;
+    }
+    if changed {
+        man.save(&campaign.root).map_err(|source| RenderError::Io {
+            path: manifest::path(&campaign.root),
+            source,
+        })?;
+    }
+    if first_err.is_none() && (changed || crashed) {
+        let _ = std::fs::remove_file(&marker);
+    }
+    match first_err {
+        Some(e) => Err(e),
+        None => Ok(report),
+    }
+}
+
+/// Renders (without writing) the first task of every stage × leg, so that `check`
+/// finds an undefined variable before `expand` does.
+pub fn probe(campaign: &Campaign, plan: &Plan) -> Result<(), RenderError> {
+    let tera = templates::load_tera(campaign).map_err(RenderError::Templates)?;
+    let builder = ContextBuilder::for_rendering(campaign, plan);
+    let mut seen = std::collections::HashSet::new();
+    for b in &plan.batches {
+        let Some(&t) = b.tasks.first() else { continue };
+        if seen.insert((b.stage.as_str(), plan.tasks[t].leg.as_str())) {
+            render_one(&tera, &builder, campaign, plan, t, 1, false)?;
+        }
+    }
+    Ok(())
+}
+
+/// Re-renders the `task.sh` of several tasks for a resubmission (attempt,
+/// restart), updating the manifest once. A file the user edited is left as it is
+/// (its path is still returned, and a warning logged).
+pub fn render_tasks(
+    campaign: &Campaign,
+    plan: &Plan,
+    tasks: &[(TaskIndex, u32, bool)],
+) -> Result<Vec<PathBuf>, RenderError> {
+    let tera = templates::load_tera(campaign).map_err(RenderError::Templates)?;
+    let builder = ContextBuilder::for_rendering(campaign, plan);
+    let mut man = Manifest::load(&campaign.root);
+    let mut rendered = Vec::with_capacity(tasks.len());
+    for &(i, attempt, restart) in tasks {
+        let rel_path = plan.tasks[i].dir.join(TASK_FILE);
+        let abs = confined(&campaign.root, &rel_path)?;
+        let content = render_one(&tera, &builder, campaign, plan, i, attempt, restart)?;
+        rendered.push((rel_path, abs, content, attempt, restart));
+    }
+    let mut out = Vec::with_capacity(rendered.len());
+    for (rel_path, abs, content, attempt, restart) in rendered {
+        let rel = rel_path.to_string_lossy().into_owned();
+        let edited = match (std::fs::metadata(&abs).ok(), man.entries.get(&rel)) {
+            (Some(m), Some(e)) => {
+                !entry_matches(&m, e) && disk_hash(&abs).as_deref() != Some(e.hash.as_str())
+            }
+            (Some(_), None) => true,
+            (None, _) => false,
+        };
+        if edited {
+            tracing::warn!(
+                "{} was edited by hand; left as it is for the rerun",
+                abs.display()
+            );
+        } else {
+            let e = write_atomic(&abs, &content, attempt, restart)?;
+            man.entries.insert(rel, e);
+        }
+        out.push(abs);
+    }
+    man.save(&campaign.root).map_err(|source| RenderError::Io {
+        path: manifest::path(&campaign.root),
+        source,
+    })?;
+    Ok(out)
+}
+
+/// Re-renders one task's `task.sh` for a resubmission; see [`render_tasks`].
+pub fn render_task(
+    campaign: &Campaign,
+    plan: &Plan,
+    task: TaskIndex,
+    attempt: u32,
+    restart: bool,
+) -> Result<PathBuf, RenderError> {
+    Ok(render_tasks(campaign, plan, &[(task, attempt, restart)])?.remove(0))
+}

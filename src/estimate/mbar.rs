@@ -1,0 +1,400 @@
+//! The multistate Bennett acceptance ratio (Shirts & Chodera 2008, J. Chem. Phys.
+//! 129, 124105): the free energies of every state, their asymptotic covariance and
+//! the overlap matrix.
+//!
+//! The free energies minimise the convex function
+//! F(f) = Σ_n ln Σ_k N_k e^{f_k − u_k(x_n)} − Σ_k N_k f_k
+//! (f_0 fixed at 0), whose gradient is Σ_n p_nk − N_k and whose Hessian is
+//! diag(Σ_n p_nk) − Σ_n p_n p_nᵀ, with p_nk the normalised weight of state k for
+//! sample n. Newton's method with a backtracking line search, every sum in the log
+//! domain; the Hessian is kept while it keeps the gradient falling fast (it changes
+//! little near the solution), so most iterations cost one pass over the samples.
+
+use super::error::EstimateError;
+use super::fastexp::exp_nonpos;
+use nalgebra::{DMatrix, DVector, SymmetricEigen};
+use rayon::prelude::*;
+
+/// The samples drawn from one state: rows of a `frames × K` row-major matrix of
+/// reduced potentials, the used frames listed in `rows`.
+#[derive(Debug, Clone, Copy)]
+pub struct MbarBlock<'a> {
+    /// The state the frames were sampled from.
+    pub state: usize,
+    /// Reduced potentials, `frames × K`, row-major.
+    pub u: &'a [f64],
+    /// The frames used.
+    pub rows: &'a [usize],
+}
+
+/// Solver settings.
+#[derive(Debug, Clone, PartialEq)]
+pub struct MbarSettings {
+    /// Converged when max_k |∂F/∂f_k| / N falls below this.
+    pub tolerance: f64,
+    /// Iteration limit.
+    pub max_iterations: usize,
+    /// Starting free energies (e.g. from BAR); zeros when absent.
+    pub initial: Option<Vec<f64>>,
+}
+
+impl Default for MbarSettings {
+    fn default() -> Self {
+        MbarSettings {
+            tolerance: 1e-12,
+            max_iterations: 100,
+            initial: None,
+        }
+    }
+}
+
+/// The MBAR solution.
+#[derive(Debug, Clone, PartialEq)]
+pub struct MbarSolution {
+    /// Reduced free energy of every state, f_0 = 0.
+    pub f: Vec<f64>,
+    /// Asymptotic covariance Θ of the free energies, `K × K` row-major.
+    pub covariance: Vec<f64>,
+    /// Overlap matrix O = Wᵀ W N, `K × K` row-major (rows sum to 1).
+    pub overlap: Vec<f64>,
+    /// Newton iterations taken.
+    pub iterations: usize,
+    /// Final max |gradient| / N.
+    pub gradient: f64,
+}
+
+impl MbarSolution {
+    /// Number of states.
+    pub fn n_states(&self) -> usize {
+        self.f.len()
+    }
+    /// f_j − f_i and its standard error sqrt(Θ_ii + Θ_jj − 2Θ_ij).
+    pub fn difference(&self, i: usize, j: usize) -> (f64, f64) {
+        let k = self.n_states();
+        let t = |a: usize, b: usize| self.covariance[a * k + b];
+        let var = t(i, i) + t(j, j) - 2.0 * t(i, j);
+        (self.f[j] - self.f[i], var.max(0.0).sqrt())
+    }
+    /// The smallest overlap between neighbouring states, min_i min(O_{i,i+1}, O_{i+1,i}).
+    pub fn min_adjacent_overlap(&self) -> Option<f64> {
+        let k = self.n_states();
+        (0..k.saturating_sub(1))
+            .map(|i| self.overlap[i * k + i + 1].min(self.overlap[(i + 1) * k + i]))
+            .reduce(f64::min)
+    }
+}
+
+/// Sums over samples from one pass.
+struct Pass {
+    objective: f64,
+    colsum: Vec<f64>,
+    /// Σ_n p_n p_nᵀ, `K × K` row-major, only when asked for.
+    gram: Vec<f64>,
+}
+
+/// Passes over the samples made by this process (diagnostics and benchmarks).
+pub static PASSES: std::sync::atomic::AtomicUsize = std::sync::atomic::AtomicUsize::new(0);
+
+/// Samples per work item: the weights of one chunk (CHUNK × K) stay in cache for
+/// the Gram update.
+const CHUNK: usize = 512;
+
+/// Per-thread scratch and sums.
+struct Acc {
+    pass: Pass,
+    buf: Vec<f64>,
+    gram: Option<DMatrix<f64>>,
+    prod: f64,
+    nprod: usize,
+}
+
+/// One chunk of samples: weights, log-sum-exp, column sums, and (when asked) the
+/// Gram matrix Σ p pᵀ through one matrix product per chunk.
+#[inline(always)]
+fn chunk_body(u: &[f64], rows: &[usize], k: usize, c: &[f64], acc: &mut Acc, gram: bool) {
+    let need = if gram { rows.len() * k } else { k };
+    if acc.buf.len() < need {
+        acc.buf.resize(need, 0.0);
+    }
+    for (i, &r) in rows.iter().enumerate() {
+        let urow = &u[r * k..(r + 1) * k];
+        let out = if gram {
+            &mut acc.buf[i * k..(i + 1) * k]
+        } else {
+            &mut acc.buf[..k]
+        };
+        for ((o, cj), uj) in out.iter_mut().zip(c).zip(urow) {
+            *o = cj - uj;
+        }
+        let mut mx = [f64::NEG_INFINITY; 4];
+        for (j, v) in out.iter().enumerate() {
+            let slot = &mut mx[j & 3];
+            *slot = if *v > *slot { *v } else { *slot };
+        }
+        let m = mx[0].max(mx[1]).max(mx[2].max(mx[3]));
+        for o in out.iter_mut() {
+            *o = exp_nonpos(*o - m);
+        }
+        let mut sm = [0.0f64; 4];
+        let mut chunks = out.chunks_exact(4);
+        for q in &mut chunks {
+            for l in 0..4 {
+                sm[l] += q[l];
+            }
+        }
+        let s = (sm[0] + sm[1]) + (sm[2] + sm[3]) + chunks.remainder().iter().sum::<f64>();
+        // ln is taken once per 8 samples, of the product of their sums (each sum lies
+        // in [1, K], so the product cannot overflow for any realistic K).
+        acc.pass.objective += m;
+        acc.prod *= s;
+        acc.nprod += 1;
+        if acc.nprod == 8 {
+            acc.pass.objective += acc.prod.ln();
+            acc.prod = 1.0;
+            acc.nprod = 0;
+        }
+        let inv = 1.0 / s;
+        for (cs, v) in acc.pass.colsum.iter_mut().zip(out.iter_mut()) {
+            *v *= inv;
+            *cs += *v;
+        }
+    }
+    if gram {
+        let r = rows.len();
+        let p = &acc.buf[..r * k];
+        // The chunk's weights read as K × r (column = sample) and as its transpose.
+        let a = nalgebra::DMatrixView::from_slice(p, k, r);
+        let at = nalgebra::DMatrixView::from_slice_with_strides(p, r, k, k, 1);
+        acc.gram
+            .as_mut()
+            .expect("gram pass")
+            .gemm(1.0, &a, &at, 1.0);
+    }
+}
+
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx2")]
+unsafe fn chunk_avx2(u: &[f64], rows: &[usize], k: usize, c: &[f64], acc: &mut Acc, gram: bool) {
+    chunk_body(u, rows, k, c, acc, gram)
+}
+
+fn chunk(u: &[f64], rows: &[usize], k: usize, c: &[f64], acc: &mut Acc, gram: bool) {
+    #[cfg(target_arch = "x86_64")]
+    {
+        if std::arch::is_x86_feature_detected!("avx2") {
+            // SAFETY: the CPU supports AVX2, checked just above.
+            unsafe { chunk_avx2(u, rows, k, c, acc, gram) };
+            return;
+        }
+    }
+    chunk_body(u, rows, k, c, acc, gram)
+}
+
+fn pass(blocks: &[MbarBlock], k: usize, c: &[f64], gram: bool) -> Pass {
+    PASSES.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
+    let mut work: Vec<(usize, usize, usize)> = Vec::new();
+    for (b, blk) in blocks.iter().enumerate() {
+        let mut s = 0;
+        while s < blk.rows.len() {
+            let e = (s + CHUNK).min(blk.rows.len());
+            work.push((b, s, e));
+            s = e;
+        }
+    }
+    let empty = || Acc {
+        pass: Pass {
+            objective: 0.0,
+            colsum: vec![0.0; k],
+            gram: Vec::new(),
+        },
+        buf: Vec::new(),
+        gram: gram.then(|| DMatrix::zeros(k, k)),
+        prod: 1.0,
+        nprod: 0,
+    };
+    let acc = work
+        .par_iter()
+        .fold(empty, |mut acc, &(b, s, e)| {
+            let blk = &blocks[b];
+            chunk(blk.u, &blk.rows[s..e], k, c, &mut acc, gram);
+            acc
+        })
+        .map(|mut a| {
+            a.pass.objective += a.prod.ln();
+            a.prod = 1.0;
+            a
+        })
+        .reduce(empty, |mut a, b| {
+            a.pass.objective += b.pass.objective;
+            for (x, y) in a.pass.colsum.iter_mut().zip(&b.pass.colsum) {
+                *x += y;
+            }
+            if let (Some(x), Some(y)) = (a.gram.as_mut(), b.gram.as_ref()) {
+                *x += y;
+            }
+            a
+        });
+    let mut out = acc.pass;
+    if let Some(g) = acc.gram {
+        out.gram = (0..k * k).map(|i| g[(i / k, i % k)]).collect();
+    }
+    out
+}
+
+/// Solves the MBAR equations for `k` states from the samples in `blocks`.
+/// Every state must have at least one sample.
+pub fn solve(
+    blocks: &[MbarBlock],
+    k: usize,
+    settings: &MbarSettings,
+) -> Result<MbarSolution, EstimateError> {
+    let mut counts = vec![0.0f64; k];
+    for b in blocks {
+        counts[b.state] += b.rows.len() as f64;
+    }
+    if let Some(s) = counts.iter().position(|&n| n == 0.0) {
+        return Err(EstimateError::Insufficient(format!(
+            "MBAR: state {s} has no samples; every state needs a window with samples"
+        )));
+    }
+    let n_total: f64 = counts.iter().sum();
+    let log_n: Vec<f64> = counts.iter().map(|n| n.ln()).collect();
+    let mut f = settings.initial.clone().unwrap_or_else(|| vec![0.0; k]);
+    assert_eq!(f.len(), k, "initial free energies: one per state");
+    let f0 = f[0];
+    f.iter_mut().for_each(|x| *x -= f0);
+    if k == 1 {
+        return Ok(MbarSolution {
+            f,
+            covariance: vec![0.0],
+            overlap: vec![1.0],
+            iterations: 0,
+            gradient: 0.0,
+        });
+    }
+    let shift = |f: &[f64]| -> Vec<f64> { f.iter().zip(&log_n).map(|(a, b)| a + b).collect() };
+    let grad_of =
+        |p: &Pass| -> Vec<f64> { p.colsum.iter().zip(&counts).map(|(a, b)| a - b).collect() };
+    let gnorm = |g: &[f64]| g.iter().fold(0.0f64, |m, v| m.max(v.abs())) / n_total;
+
+    // The Gram matrix costs one small matrix product per chunk of samples, so every
+    // pass computes it: each step is a full Newton step, and the pass that shows
+    // convergence also gives the covariance and overlap.
+    let mut cur = pass(blocks, k, &shift(&f), true);
+    let mut g = grad_of(&cur);
+    let mut iterations = 0;
+    let mut last_norm = gnorm(&g);
+    while last_norm >= settings.tolerance {
+        if iterations >= settings.max_iterations {
+            return Err(EstimateError::NotConverged(format!(
+                "MBAR did not converge in {} iterations (max |gradient|/N = {last_norm:.3e}); the states may not overlap",
+                settings.max_iterations
+            )));
+        }
+        iterations += 1;
+        let chol = reduced_hessian(&cur, k)?;
+        let rhs = DVector::from_iterator(k - 1, g[1..].iter().map(|v| -v));
+        let step = chol.solve(&rhs);
+        let mut t = 1.0;
+        let mut accepted = None;
+        for _ in 0..40 {
+            let mut trial = f.clone();
+            for j in 1..k {
+                trial[j] += t * step[j - 1];
+            }
+            let p = pass(blocks, k, &shift(&trial), true);
+            let gt = grad_of(&p);
+            let slack = 1e-12 * cur.objective.abs().max(1.0);
+            if p.objective <= cur.objective + slack || gnorm(&gt) < last_norm {
+                accepted = Some((trial, p, gt));
+                break;
+            }
+            t *= 0.5;
+        }
+        let Some((trial, p, gt)) = accepted else {
+            if last_norm < 1e-8 {
+                break;
+            }
+            return Err(EstimateError::NotConverged(format!(
+                "MBAR line search failed (max |gradient|/N = {last_norm:.3e}); the states may not overlap"
+            )));
+        };
+        let norm = gnorm(&gt);
+        // Below 1e-8 a step that no longer lowers the gradient has hit rounding noise.
+        if norm >= last_norm && last_norm < 1e-8 {
+            break;
+        }
+        f = trial;
+        cur = p;
+        g = gt;
+        last_norm = norm;
+    }
+    let fin = cur;
+    let gram = full_gram(&fin.gram, k);
+    // W_nk = p_nk / N_k, so G = Wᵀ W = N⁻¹ (Σ p pᵀ) N⁻¹.
+    let gmat = DMatrix::from_fn(k, k, |a, b| gram[a * k + b] / (counts[a] * counts[b]));
+    let covariance = covariance(&gmat, &counts);
+    let overlap: Vec<f64> = (0..k * k)
+        .map(|i| gmat[(i / k, i % k)] * counts[i % k])
+        .collect();
+    Ok(MbarSolution {
+        f,
+        covariance,
+        overlap,
+        iterations,
+        gradient: last_norm,
+    })
+}
+
+fn full_gram(upper: &[f64], k: usize) -> Vec<f64> {
+    let mut g = upper.to_vec();
+    for a in 0..k {
+        for b in 0..a {
+            g[a * k + b] = g[b * k + a];
+        }
+    }
+    g
+}
+
+fn reduced_hessian(
+    p: &Pass,
+    k: usize,
+) -> Result<nalgebra::Cholesky<f64, nalgebra::Dyn>, EstimateError> {
+    let gram = full_gram(&p.gram, k);
+    let h = DMatrix::from_fn(k - 1, k - 1, |a, b| {
+        let (a, b) = (a + 1, b + 1);
+        let d = if a == b { p.colsum[a] } else { 0.0 };
+        d - gram[a * k + b]
+    });
+    nalgebra::Cholesky::new(h).ok_or_else(|| {
+        EstimateError::NotConverged(
+            "MBAR: the Hessian is singular (some states share no samples' weight: they do not overlap)".into(),
+        )
+    })
+}
+
+/// Θ = Wᵀ (I − W N Wᵀ)⁺ W (Shirts & Chodera 2008, Eq. D6), evaluated through the
+/// K × K Gram matrix G = WᵀW = V Σ² Vᵀ: Θ = V Σ (I − Σ Vᵀ N V Σ)⁺ Σ Vᵀ, the
+/// pseudo-inverse taking care of the rank deficiency (F is blind to a common shift).
+fn covariance(g: &DMatrix<f64>, counts: &[f64]) -> Vec<f64> {
+    let k = g.nrows();
+    let eig = SymmetricEigen::new(g.clone());
+    let v = eig.eigenvectors;
+    let sigma = DVector::from_iterator(k, eig.eigenvalues.iter().map(|l| l.max(0.0).sqrt()));
+    let s = DMatrix::from_diagonal(&sigma);
+    let n = DMatrix::from_diagonal(&DVector::from_column_slice(counts));
+    let a = &s * v.transpose() * &n * &v * &s;
+    let m = DMatrix::<f64>::identity(k, k) - a;
+    let me = SymmetricEigen::new(m);
+    let biggest = me.eigenvalues.iter().fold(0.0f64, |x, l| x.max(l.abs()));
+    let cut = biggest * 1e-10;
+    let inv_diag = DVector::from_iterator(
+        k,
+        me.eigenvalues
+            .iter()
+            .map(|&l| if l.abs() > cut { 1.0 / l } else { 0.0 }),
+    );
+    let pinv = &me.eigenvectors * DMatrix::from_diagonal(&inv_diag) * me.eigenvectors.transpose();
+    let theta = &v * &s * pinv * &s * v.transpose();
+    (0..k * k).map(|i| theta[(i / k, i % k)]).collect()
+}

@@ -4,7 +4,7 @@
 mod scheduler_support;
 
 use legwork::scheduler::{self, SchedulerConfig};
-use legwork::state::{self, markers, CampaignState, Context, FailureKind, Selection, TaskState};
+use legwork::state::{self, markers, CampaignState, Context, FailureKind, Selection};
 use scheduler_support::*;
 use std::sync::atomic::AtomicBool;
 use std::time::Duration;

@@ -109,3 +109,79 @@ impl TaskHooks for OutTxt {
 pub fn use_built_legwork() {
     std::env::set_var("LEGWORK_EXE", env!("CARGO_BIN_EXE_legwork"));
 }
+
+/// A scheduler that keeps every submitted element pending and counts the
+/// queries it answers (scale test and status benchmark).
+pub struct Stub {
+    next: u64,
+    jobs: Vec<(String, Vec<usize>)>,
+    /// `query` calls so far.
+    pub queries: std::rc::Rc<std::cell::Cell<u64>>,
+}
+
+// The counter is only read on the test's own thread.
+unsafe impl Send for Stub {}
+
+impl Stub {
+    /// A fresh stub and a handle on its query counter.
+    pub fn new() -> (Stub, std::rc::Rc<std::cell::Cell<u64>>) {
+        let q = std::rc::Rc::new(std::cell::Cell::new(0));
+        (
+            Stub {
+                next: 1,
+                jobs: Vec::new(),
+                queries: q.clone(),
+            },
+            q,
+        )
+    }
+}
+
+impl legwork::scheduler::Scheduler for Stub {
+    fn kind(&self) -> legwork::scheduler::SchedulerKind {
+        legwork::scheduler::SchedulerKind::Slurm
+    }
+    fn index_variable(&self) -> &'static str {
+        "STUB_INDEX"
+    }
+    fn submit(
+        &mut self,
+        sub: &legwork::scheduler::Submission,
+    ) -> Result<String, legwork::scheduler::SchedulerError> {
+        let id = self.next.to_string();
+        self.next += 1;
+        self.jobs.push((
+            id.clone(),
+            sub.elements.iter().map(|e| e.array_index).collect(),
+        ));
+        Ok(id)
+    }
+    fn element_id(&self, job: &str, i: usize) -> String {
+        format!("{job}_{i}")
+    }
+    fn query(
+        &mut self,
+        jobs: &[String],
+    ) -> Result<legwork::scheduler::QueryResult, legwork::scheduler::SchedulerError> {
+        self.queries.set(self.queries.get() + 1);
+        let wanted: std::collections::HashSet<&str> = jobs.iter().map(String::as_str).collect();
+        let mut r = legwork::scheduler::QueryResult::default();
+        for (id, idx) in &self.jobs {
+            if wanted.contains(id.as_str()) {
+                for i in idx {
+                    r.elements.insert(
+                        format!("{id}_{i}"),
+                        legwork::scheduler::JobStatus::new(legwork::scheduler::QueueState::Pending),
+                    );
+                }
+            }
+        }
+        Ok(r)
+    }
+    fn find_by_name(&mut self, _: &str) -> Result<Vec<String>, legwork::scheduler::SchedulerError> {
+        Ok(vec![])
+    }
+    fn cancel(&mut self, _: &[String]) -> Result<(), legwork::scheduler::SchedulerError> {
+        Ok(())
+    }
+}

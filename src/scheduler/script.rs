@@ -34,6 +34,8 @@ rm -f .exited.json
 printf '{"time":"%s","host":"%s","job":"%s","attempt":%s,"pid":%s}\n' \
   "$started" "$(esc "$(hostname)")" "$(esc "$job")" "$attempt" "$$" > .started.json.tmp &&
   mv -f .started.json.tmp .started.json
+# Every attempt's start and end, kept across attempts (the markers are replaced).
+cat .started.json >> .attempts.jsonl
 sig=
 child=
 on_signal() {
@@ -54,6 +56,7 @@ if [ -n "$sig" ]; then sigjson="\"$sig\""; else sigjson=null; fi
 printf '{"time":"%s","started":"%s","job":"%s","attempt":%s,"code":%s,"signal":%s}\n' \
   "$(now)" "$started" "$(esc "$job")" "$attempt" "$code" "$sigjson" > .exited.json.tmp &&
   mv -f .exited.json.tmp .exited.json
+cat .exited.json >> .attempts.jsonl
 exit "$code"
 "#;
 

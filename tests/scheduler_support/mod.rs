@@ -185,3 +185,70 @@ impl legwork::scheduler::Scheduler for Stub {
         Ok(())
     }
 }
+
+/// For the recorded-output tests: puts `tests/fixtures/<kind>/bin` first on
+/// PATH and returns the call log the shims write.
+pub fn use_shims(kind: &str, dir: &Path) -> PathBuf {
+    let bin = Path::new(env!("CARGO_MANIFEST_DIR"))
+        .join("tests/fixtures")
+        .join(kind)
+        .join("bin");
+    std::env::set_var(
+        "PATH",
+        format!("{}:{}", bin.display(), std::env::var("PATH").unwrap()),
+    );
+    let log = dir.join("calls.log");
+    std::env::set_var("SHIM_LOG", &log);
+    log
+}
+
+/// Renders a four-window production submission for `kind` under `root`, waiting
+/// for job `after`, and returns it with its script text.
+pub fn rendered_submission(
+    sched: &dyn legwork::scheduler::Scheduler,
+    root: &Path,
+    after: &str,
+) -> (legwork::scheduler::Submission, String) {
+    use legwork::scheduler::{job_name, script, Dependency, Element, Submission};
+    let indices = sched.array_indices(&[0, 1, 2, 3]);
+    let elements = indices
+        .iter()
+        .enumerate()
+        .map(|(w, &i)| Element {
+            array_index: i,
+            task_id: format!("e0a~e0b/complex/r1/w{w:02}/production"),
+            dir: root.join(format!("e0a~e0b/complex/r1/w{w:02}/production")),
+            attempt: 1,
+        })
+        .collect();
+    let name = job_name("t", "e0a~e0b/complex/r1/production", 2);
+    let sub = Submission {
+        script: root.join(".legwork/batches").join(format!("{name}.sh")),
+        name,
+        batch_id: "e0a~e0b/complex/r1/production".into(),
+        elements,
+        resources: Resources {
+            cpus: 4,
+            gpus: 1,
+            memory_mb: 2048,
+            walltime_s: 5400,
+        },
+        after: vec![Dependency::AfterOk(after.into())],
+        throttle: 2,
+        root: root.to_path_buf(),
+        log_dir: root.join(".legwork/logs"),
+    };
+    let wrapper = script::install_wrapper(root).unwrap();
+    script::render(sched.kind(), None, &sub, "t", &Default::default(), &wrapper).unwrap();
+    let text = std::fs::read_to_string(&sub.script).unwrap();
+    let syntax = std::process::Command::new("bash")
+        .arg("-n")
+        .arg(&sub.script)
+        .status()
+        .unwrap();
+    assert!(
+        syntax.success(),
+        "the rendered batch script is not valid bash:\n{text}"
+    );
+    (sub, text)
+}

@@ -37,6 +37,20 @@ pub fn run(args: Args, global: &Global) -> anyhow::Result<()> {
         return Ok(());
     }
     let file = args.file.expect("clap requires it");
+    // The tree first (idempotent: unchanged scripts are left alone, hand-edited
+    // ones protected), so `submit` works on a fresh campaign.
+    let loaded = super::check::load_or_exit(&file, None, false)?;
+    let plan = crate::plan::expand(&loaded.campaign);
+    crate::render::write_tree(
+        &loaded.campaign,
+        &plan,
+        &crate::render::RenderOptions {
+            force: false,
+            dry_run: false,
+            progress: false,
+        },
+    )
+    .map_err(|e| crate::exit::Exit::bad_input(format!("error: {e}")))?;
     super::status::with_campaign(&file, args.lock_wait, global, |c| {
         let s = crate::state::submit_ready(
             c.state,

@@ -49,12 +49,67 @@ pub struct Loaded {
     pub hooks: Box<dyn TaskHooks>,
 }
 
-/// Reads, validates and expands the campaign in `file`.
+/// Reads, validates and expands the campaign in `file` (bad input: exit 2).
 pub fn load(file: &Path) -> anyhow::Result<Loaded> {
-    anyhow::bail!(
-        "{}: reading campaigns needs campaign::load and plan::expand, which have not landed in this build",
-        file.display()
-    )
+    let loaded = super::check::load_or_exit(file, None, false)?;
+    let campaign = loaded.campaign;
+    let plan = crate::plan::expand(&campaign);
+    let batch_template = campaign
+        .scheduler
+        .batch_template
+        .as_ref()
+        .map(|t| campaign.templates_dir.join(t));
+    if let Some(t) = &batch_template {
+        if !t.is_file() {
+            return Err(Exit::bad_input(format!(
+                "{}: scheduler.batch_template {} does not exist; copy one of legwork's templates/batch/*.sh.tera there, or remove the key to use the built-in one",
+                campaign.file.display(),
+                t.display()
+            ))
+            .into());
+        }
+    }
+    Ok(Loaded {
+        name: campaign.name.clone(),
+        root: campaign.root.clone(),
+        plan,
+        config: campaign.scheduler.clone(),
+        batch_template,
+        hooks: Box::new(CampaignHooks { campaign }),
+    })
+}
+
+/// Done means done with the campaign's own reader; reruns re-rendered by the
+/// campaign's templates.
+struct CampaignHooks {
+    campaign: crate::campaign::Campaign,
+}
+
+impl TaskHooks for CampaignHooks {
+    fn check_output(&self, plan: &Plan, task: usize, dir: &Path) -> Result<(), String> {
+        let t = &plan.tasks[task];
+        let Some(stage) = self.campaign.stages.iter().find(|s| s.name == t.stage) else {
+            return Ok(());
+        };
+        let Some(output) = &stage.output else {
+            return Ok(());
+        };
+        crate::collect::validate_output(&dir.join(output), &self.campaign.reader, t.frames)
+            .map(|_| ())
+            .map_err(|e| e.to_string())
+    }
+
+    fn prepare_attempt(
+        &self,
+        plan: &Plan,
+        task: usize,
+        attempt: u32,
+        restart: bool,
+    ) -> Result<(), String> {
+        crate::render::render_task(&self.campaign, plan, task, attempt, restart)
+            .map(|_| ())
+            .map_err(|e| e.to_string())
+    }
 }
 
 /// Runs `legwork watch`.

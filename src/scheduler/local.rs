@@ -382,6 +382,17 @@ impl Scheduler for Local {
             statuses
         };
         for (job, st) in statuses {
+            // Submitted but not yet read by the executor: every element waits.
+            let st = st.or_else(|| {
+                let bytes = std::fs::read(self.paths.job(&job)).ok()?;
+                let j: LocalJob = serde_json::from_slice(&bytes).ok()?;
+                Some(
+                    j.indices
+                        .iter()
+                        .map(|i| (*i, ElementState::Pending))
+                        .collect(),
+                )
+            });
             let Some(st) = st else { continue };
             for (idx, e) in st {
                 if !running && !e.is_terminal() {

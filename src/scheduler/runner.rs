@@ -192,6 +192,17 @@ impl Runner {
     ) -> Result<Output, RunError> {
         let mut cmd = Command::new(program);
         cmd.args(args).stdout(Stdio::piped()).stderr(Stdio::piped());
+        // A command in flight dies with legwork rather than finishing behind the
+        // back of the next legwork (which reconciles by job name instead).
+        {
+            use std::os::unix::process::CommandExt;
+            unsafe {
+                cmd.pre_exec(|| {
+                    libc::prctl(libc::PR_SET_PDEATHSIG, libc::SIGKILL);
+                    Ok(())
+                });
+            }
+        }
         match stdin {
             Some(p) => {
                 let f = std::fs::File::open(p).map_err(|source| RunError::Spawn {

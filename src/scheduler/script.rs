@@ -34,11 +34,16 @@ rm -f .exited.json
 printf '{"time":"%s","host":"%s","job":"%s","attempt":%s,"pid":%s}\n' \
   "$started" "$(esc "$(hostname)")" "$(esc "$job")" "$attempt" "$$" > .started.json.tmp &&
   mv -f .started.json.tmp .started.json
+# Every attempt's start and end, kept across attempts (the markers are replaced).
+cat .started.json >> .attempts.jsonl
 sig=
 child=
 on_signal() {
-  [ -n "$sig" ] || sig=$1
-  [ -n "$child" ] && kill -"$1" "$child" 2>/dev/null
+  [ -n "$sig" ] && return
+  sig=$1
+  # The whole process group: the task's own children too (a shell waiting for
+  # a foreground command would otherwise defer the signal until it ends).
+  kill -"$1" 0 2>/dev/null || { [ -n "$child" ] && kill -"$1" "$child" 2>/dev/null; }
 }
 for s in TERM INT HUP USR1 USR2 XCPU; do trap "on_signal $s" "$s"; done
 bash task.sh &
@@ -51,6 +56,7 @@ if [ -n "$sig" ]; then sigjson="\"$sig\""; else sigjson=null; fi
 printf '{"time":"%s","started":"%s","job":"%s","attempt":%s,"code":%s,"signal":%s}\n' \
   "$(now)" "$started" "$(esc "$job")" "$attempt" "$code" "$sigjson" > .exited.json.tmp &&
   mv -f .exited.json.tmp .exited.json
+cat .exited.json >> .attempts.jsonl
 exit "$code"
 "#;
 

@@ -7,6 +7,8 @@ use std::path::Path;
 pub const STARTED: &str = ".started.json";
 /// `.exited.json`.
 pub const EXITED: &str = ".exited.json";
+/// `.attempts.jsonl`: every attempt's start marker and exit marker, in order.
+pub const HISTORY: &str = ".attempts.jsonl";
 
 /// Written when the task starts.
 #[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]

@@ -157,13 +157,17 @@ pub trait TaskHooks {
         restart: bool,
     ) -> Result<(), String>;
 
-    /// Whether the task left a checkpoint to restart from. Default: a file whose
-    /// name starts with `checkpoint` in its directory.
+    /// Whether the task left a checkpoint to restart from. Default: a file in its
+    /// directory whose name starts with `checkpoint` or ends in `.ckpt`, `.cpt` or
+    /// `.chk` (common practice, no source).
     fn has_checkpoint(&self, _plan: &Plan, _task: TaskIndex, dir: &Path) -> bool {
         std::fs::read_dir(dir)
             .map(|rd| {
-                rd.flatten()
-                    .any(|e| e.file_name().to_string_lossy().starts_with("checkpoint"))
+                rd.flatten().any(|e| {
+                    let n = e.file_name().to_string_lossy().into_owned();
+                    n.starts_with("checkpoint")
+                        || [".ckpt", ".cpt", ".chk"].iter().any(|x| n.ends_with(x))
+                })
             })
             .unwrap_or(false)
     }

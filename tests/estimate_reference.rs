@@ -59,7 +59,10 @@ fn harmonic_oscillators_match_the_analytic_free_energies() {
         );
     }
     let mid = est.mbar_difference(1, 3).unwrap();
-    assert!((mid.delta_g - (f[3] - f[1])).abs() < 4.0 * mid.sigma, "{mid:?}");
+    assert!(
+        (mid.delta_g - (f[3] - f[1])).abs() < 4.0 * mid.sigma,
+        "{mid:?}"
+    );
     // Overlap matrix rows sum to 1 (Shirts & Chodera 2008 / its definition O = WᵀWN).
     for row in est.overlap.as_ref().unwrap() {
         assert!((row.iter().sum::<f64>() - 1.0).abs() < 1e-10);

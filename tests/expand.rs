@@ -379,6 +379,19 @@ fn undefined_variable_names_task_and_template_and_writes_nothing() {
         other => panic!("{other}"),
     }
     assert!(!c.root.exists(), "nothing written");
+    let out = Command::cargo_bin("legwork")
+        .unwrap()
+        .arg("check")
+        .arg(dir.path().join("campaign.yaml"))
+        .assert()
+        .code(2)
+        .get_output()
+        .clone();
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert!(
+        stderr.contains("/prepare: template") && stderr.contains("no_such_thing"),
+        "check finds it too: {stderr}"
+    );
 }
 
 #[test]
@@ -400,6 +413,23 @@ fn paths_cannot_escape_the_root() {
             "{bad} must be refused"
         );
     }
+}
+
+#[test]
+fn a_symlink_in_the_tree_is_refused() {
+    let (dir, c) = basic();
+    let elsewhere = dir.path().join("elsewhere");
+    std::fs::create_dir_all(&elsewhere).unwrap();
+    std::fs::create_dir_all(&c.root).unwrap();
+    std::os::unix::fs::symlink(&elsewhere, c.root.join("lig-1~lig-2")).unwrap();
+    let p = plan::expand(&c);
+    let err = render::write_tree(&c, &p, &RenderOptions::default()).unwrap_err();
+    assert!(matches!(err, RenderError::Escape(_)), "{err}");
+    assert_eq!(
+        std::fs::read_dir(&elsewhere).unwrap().count(),
+        0,
+        "nothing written through the link"
+    );
 }
 
 #[test]
@@ -549,4 +579,92 @@ fn check_summary_counts_and_hours() {
     // 2 × 1 × 4 × 2 cpus × 0.5 h = 8 → 152 core-hours; GPUs 2 × 2 × 6 × 1.5 = 36.
     assert_eq!(v["core_hours"], 152.0);
     assert_eq!(v["gpu_hours"], 36.0);
+}
+
+#[test]
+fn absolute_campaign_with_components_and_restraint() {
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::create_dir(dir.path().join("templates")).unwrap();
+    std::fs::write(
+        dir.path().join("templates/w.sh.tera"),
+        "{{ ligand.id }} {{ window.lambdas.vdw }} {{ vars.box }} {{ components | join(sep=\",\") }}\n",
+    )
+    .unwrap();
+    std::fs::write(
+        dir.path().join("campaign.yaml"),
+        r#"campaign: abs
+kind: absolute
+unit: kJ/mol
+templates: templates
+vars: { box: 30 }
+ligands:
+  - { id: x1, vars: { box: 45 } }
+  - x2
+legs:
+  bound:
+    sign: -1
+    correction: -1.25
+    restraint: { kind: boresch, r0: 5.0, theta_a: 90, theta_b: 60, k_r: 10, k_theta_a: 10, k_theta_b: 10, k_phi_a: 10, k_phi_b: 10, k_phi_c: 10 }
+    lambdas:
+      components:
+        restraint: [0, 1, 1, 1]
+        charge: [0, 0, 1, 1]
+        vdw: [0, 0, 0, 1]
+stages:
+  - { name: run, per: window, template: w.sh.tera }
+"#,
+    )
+    .unwrap();
+    let c = load(dir.path());
+    assert_eq!(c.kind, campaign::CampaignKind::Absolute);
+    let leg = &c.legs[0];
+    assert_eq!(leg.correction, Some(-1.25));
+    assert_eq!(leg.restraint.as_ref().unwrap().theta_b, 60.0);
+    assert_eq!(leg.lambdas.components, vec!["restraint", "charge", "vdw"]);
+    let p = plan::expand(&c);
+    // 2 ligands × 1 leg × 1 replica × 4 windows
+    assert_eq!(p.tasks.len(), 8);
+    assert_eq!(
+        p.leg("bound").unwrap().lambdas,
+        vec![0.0, 1.0 / 3.0, 2.0 / 3.0, 1.0]
+    );
+    write(&c, false);
+    let got = std::fs::read_to_string(c.root.join("x1/bound/r1/w03/run/task.sh")).unwrap();
+    assert_eq!(
+        got, "x1 1 45 restraint,charge,vdw\n",
+        "ligand vars win over campaign vars"
+    );
+    let got = std::fs::read_to_string(c.root.join("x2/bound/r1/w01/run/task.sh")).unwrap();
+    assert_eq!(got, "x2 0 30 restraint,charge,vdw\n");
+}
+
+#[test]
+fn a_file_half_written_by_a_crashed_expand_is_replaced() {
+    let (_d, c) = basic();
+    write(&c, false);
+    let rel = "lig-1~lig-2/solvent/r1/w02/production/task.sh";
+    let f = c.root.join(rel);
+    let full = std::fs::read_to_string(&f).unwrap();
+    // What a crash leaves: a partial file, no manifest entry, the marker.
+    std::fs::write(&f, &full[..full.len() / 2]).unwrap();
+    let m = c.root.join(".legwork/render-manifest.tsv");
+    let kept: String = std::fs::read_to_string(&m)
+        .unwrap()
+        .lines()
+        .filter(|l| !l.starts_with(rel))
+        .map(|l| format!("{l}\n"))
+        .collect();
+    std::fs::write(&m, &kept).unwrap();
+    let marker = c.root.join(".legwork/render-in-progress");
+    std::fs::write(&marker, "1\n").unwrap();
+    let r = write(&c, false);
+    assert!(r.protected.is_empty());
+    assert_eq!(r.written, 1);
+    assert_eq!(std::fs::read_to_string(&f).unwrap(), full);
+    assert!(!marker.exists());
+    // Without the marker the same unknown file is the user's, and protected.
+    std::fs::write(&f, "mine\n").unwrap();
+    std::fs::write(&m, &kept).unwrap();
+    let r = write(&c, false);
+    assert_eq!(r.protected, vec![PathBuf::from(rel)]);
 }

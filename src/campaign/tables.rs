@@ -85,8 +85,15 @@ pub fn read_csv(ctx: &mut Ctx, path: &Path, required: &[&str]) -> Option<Vec<Row
     Some(rows)
 }
 
-/// A cell as a template variable: integers and numbers become numbers.
+/// A cell as a template variable: integers and numbers become numbers, except
+/// where that would change how they read (a leading zero or `+`: `007` stays text).
 pub fn cell_value(text: &str) -> serde_json::Value {
+    let digits = text.strip_prefix('-').unwrap_or(text);
+    let keeps_text = text.starts_with('+')
+        || (digits.len() > 1 && digits.starts_with('0') && !digits.starts_with("0."));
+    if keeps_text {
+        return serde_json::Value::String(text.to_string());
+    }
     if let Ok(i) = text.parse::<i64>() {
         return i.into();
     }
@@ -107,4 +114,21 @@ pub fn row_vars(row: &Row, skip: &[&str]) -> Vars {
         .filter(|(h, _)| !skip.contains(&h.as_str()))
         .map(|(h, c)| (h.clone(), cell_value(c)))
         .collect()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::cell_value;
+    use serde_json::json;
+
+    #[test]
+    fn cells() {
+        assert_eq!(cell_value("3"), json!(3));
+        assert_eq!(cell_value("-2.5"), json!(-2.5));
+        assert_eq!(cell_value("0.5"), json!(0.5));
+        assert_eq!(cell_value("007"), json!("007"));
+        assert_eq!(cell_value("+1"), json!("+1"));
+        assert_eq!(cell_value("CCO"), json!("CCO"));
+        assert_eq!(cell_value("nan"), json!("nan"));
+    }
 }

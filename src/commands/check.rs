@@ -146,6 +146,15 @@ pub fn run(args: Args, _global: &Global) -> anyhow::Result<()> {
     let loaded = load_or_exit(&args.file, args.root, args.json)?;
     let c = &loaded.campaign;
     let p = plan::expand(c);
+    if let Err(e) = crate::render::probe(c, &p) {
+        if args.json {
+            println!(
+                "{}",
+                serde_json::json!({"ok": false, "render_error": e.to_string()})
+            );
+        }
+        return Err(Exit::bad_input(format!("error: {e}")).into());
+    }
     let s = summarise(c, &p, loaded.warnings);
     if args.json {
         let mut v = serde_json::to_value(&s)?;

@@ -39,11 +39,35 @@ pub struct ContextBuilder<'a> {
     plan: &'a Plan,
     common: tera::Context,
     bases: std::collections::HashMap<(String, String), LegBase>,
+    with_states: bool,
 }
 
 impl<'a> ContextBuilder<'a> {
-    /// Prepares the shared parts of every context.
+    /// Prepares the shared parts of every context: the full context of CONTRACT §3.
     pub fn new(campaign: &'a Campaign, plan: &'a Plan) -> Self {
+        Self::build(campaign, plan, true)
+    }
+
+    /// Like [`ContextBuilder::new`], but leaves out `states` (the one large,
+    /// per-leg list) when no template of the campaign's folder mentions it: copying
+    /// it into every task's context is most of the cost of rendering a large tree,
+    /// and a template can only reach a variable by naming it.
+    pub fn for_rendering(campaign: &'a Campaign, plan: &'a Plan) -> Self {
+        let mentions = |word: &str| {
+            let mut files: Vec<std::path::PathBuf> =
+                crate::campaign::templates::template_files(&campaign.templates_dir)
+                    .map(|f| f.into_iter().map(|(_, p)| p).collect())
+                    .unwrap_or_default();
+            files.extend(campaign.stages.iter().map(|s| s.template_path.clone()));
+            files.iter().any(|p| {
+                std::fs::read_to_string(p)
+                    .map_or(true, |t| t.contains(word) || t.contains("__tera_context"))
+            })
+        };
+        Self::build(campaign, plan, mentions("states"))
+    }
+
+    fn build(campaign: &'a Campaign, plan: &'a Plan, with_states: bool) -> Self {
         let mut common = tera::Context::new();
         common.insert(
             "campaign",
@@ -71,6 +95,7 @@ impl<'a> ContextBuilder<'a> {
             plan,
             common,
             bases: Default::default(),
+            with_states,
         };
         for subject in campaign.subjects() {
             for leg in &campaign.legs {
@@ -130,7 +155,9 @@ impl<'a> ContextBuilder<'a> {
             "leg",
             &json!({"name": leg.name, "sign": leg.sign, "replicas": leg.replicas, "windows": n}),
         );
-        ctx.insert("states", &states);
+        if self.with_states {
+            ctx.insert("states", &states);
+        }
         ctx.insert("lambdas", &leg.lambdas.primaries());
         ctx.insert("components", &leg.lambdas.components);
         LegBase { ctx, vars, states }

@@ -18,7 +18,7 @@ use crate::plan::{Plan, TaskIndex};
 use manifest::{Entry, Manifest};
 use rayon::prelude::*;
 use std::io::Write;
-use std::os::unix::fs::PermissionsExt;
+use std::os::unix::fs::OpenOptionsExt;
 use std::path::{Component, Path, PathBuf};
 
 /// The file render writes in each task directory.
@@ -93,9 +93,19 @@ pub fn confined(root: &Path, rel: &Path) -> Result<PathBuf, RenderError> {
 
 enum Action {
     Unchanged,
+    /// Replace an existing file of ours (temp + rename).
     Write(String),
+    /// Create a file believed absent; see [`create_new`].
+    Create(String),
     Protected,
     Adopt(Entry),
+}
+
+/// What a write did.
+enum Outcome {
+    Written(String, Entry),
+    Adopted(String, Entry),
+    Protected(String),
 }
 
 struct Decision {
@@ -149,16 +159,32 @@ fn decide(
     plan: &Plan,
     i: TaskIndex,
     man: &Manifest,
-    fast: bool,
-    force: bool,
+    flags: Flags,
     render: &dyn Fn(TaskIndex, u32, bool) -> Result<String, RenderError>,
 ) -> Result<Decision, RenderError> {
+    let Flags {
+        fast,
+        force,
+        dry_run,
+        crashed,
+    } = flags;
     let task = &plan.tasks[i];
     let rel_path = task.dir.join(TASK_FILE);
     let abs = confined(&campaign.root, &rel_path)?;
     let rel = rel_path.to_string_lossy().into_owned();
     let entry = man.entries.get(&rel);
     let (attempt, restart) = entry.map_or((1, false), |e| (e.attempt, e.restart));
+    if entry.is_none() && !dry_run {
+        // Not ours yet: try to create it, and look at what is there only if
+        // something is (saves a stat per file on a first expand).
+        let content = render(i, attempt, restart)?;
+        return Ok(Decision {
+            rel,
+            action: Action::Create(content),
+            attempt,
+            restart,
+        });
+    }
     let meta = std::fs::symlink_metadata(&abs).ok();
     if let Some(m) = &meta {
         if !m.file_type().is_file() {
@@ -198,7 +224,9 @@ fn decide(
             }
         }
         (Some(_), None) => {
-            if disk_hash(&abs).as_deref() == Some(new_hash.as_str()) {
+            if crashed {
+                Action::Write(content)
+            } else if disk_hash(&abs).as_deref() == Some(new_hash.as_str()) {
                 adopt(&abs, new_hash, attempt, restart)
             } else if force {
                 Action::Write(content)
@@ -228,6 +256,84 @@ fn adopt(abs: &Path, hash: String, attempt: u32, restart: bool) -> Action {
     }
 }
 
+/// How [`decide`] treats files.
+#[derive(Clone, Copy)]
+struct Flags {
+    fast: bool,
+    force: bool,
+    dry_run: bool,
+    /// A previous expand stopped while writing: files on disk without a manifest
+    /// entry may be its half-written ones, so they are ours to replace.
+    crashed: bool,
+}
+
+/// Where an expand records that it is writing; present at the start of the next
+/// one only if that one stopped half-way.
+fn in_progress_path(root: &Path) -> PathBuf {
+    root.join(".legwork").join("render-in-progress")
+}
+
+/// Creates a task file that did not exist, writing it in place (no reader can be
+/// looking at a file that did not exist; a crash half-way is covered by the
+/// in-progress marker). If something is already there, decides as for an
+/// existing file: adopt it when equal, replace it when forced or left by a crashed
+/// run, else protect it.
+fn create_new(
+    root: &Path,
+    d: &Decision,
+    content: &str,
+    force: bool,
+    crashed: bool,
+) -> Result<Outcome, RenderError> {
+    let path = root.join(&d.rel);
+    let io = |source| RenderError::Io {
+        path: path.clone(),
+        source,
+    };
+    let dir = path.parent().expect("task files have a directory");
+    std::fs::create_dir_all(dir).map_err(io)?;
+    match std::fs::OpenOptions::new()
+        .write(true)
+        .create_new(true)
+        .mode(0o755)
+        .open(&path)
+    {
+        Ok(mut f) => {
+            f.write_all(content.as_bytes()).map_err(io)?;
+            let meta = f.metadata().map_err(io)?;
+            Ok(Outcome::Written(
+                d.rel.clone(),
+                Entry {
+                    hash: manifest::hash(content.as_bytes()),
+                    size: meta.len(),
+                    mtime_ns: manifest::mtime_ns(&meta),
+                    attempt: d.attempt,
+                    restart: d.restart,
+                },
+            ))
+        }
+        Err(e) if e.kind() == std::io::ErrorKind::AlreadyExists => {
+            let m = std::fs::symlink_metadata(&path).map_err(io)?;
+            if !m.file_type().is_file() {
+                return Err(RenderError::Escape(PathBuf::from(&d.rel)));
+            }
+            let new_hash = manifest::hash(content.as_bytes());
+            if !crashed && disk_hash(&path).as_deref() == Some(new_hash.as_str()) {
+                return Ok(match adopt(&path, new_hash, d.attempt, d.restart) {
+                    Action::Adopt(e) => Outcome::Adopted(d.rel.clone(), e),
+                    _ => Outcome::Protected(d.rel.clone()),
+                });
+            }
+            if force || crashed {
+                return write_atomic(&path, content, d.attempt, d.restart)
+                    .map(|e| Outcome::Written(d.rel.clone(), e));
+            }
+            Ok(Outcome::Protected(d.rel.clone()))
+        }
+        Err(e) => Err(io(e)),
+    }
+}
+
 /// Writes `content` to `path` atomically: a temporary file beside it, mode 0755,
 /// then a rename. Returns the manifest entry.
 fn write_atomic(
@@ -243,10 +349,16 @@ fn write_atomic(
     let dir = path.parent().expect("task files have a directory");
     std::fs::create_dir_all(dir).map_err(io)?;
     let tmp = dir.join(format!(".{TASK_FILE}.tmp-{}", std::process::id()));
-    let mut f = std::fs::File::create(&tmp).map_err(io)?;
+    // Executable for its owner and readable by all (the umask may take more away).
+    let mut f = std::fs::OpenOptions::new()
+        .write(true)
+        .create(true)
+        .truncate(true)
+        .mode(0o755)
+        .open(&tmp)
+        .map_err(io)?;
     let res = (|| {
         f.write_all(content.as_bytes())?;
-        f.set_permissions(std::fs::Permissions::from_mode(0o755))?;
         let meta = f.metadata()?;
         drop(f);
         std::fs::rename(&tmp, path)?;
@@ -281,6 +393,77 @@ fn progress_bar(show: bool, len: usize, msg: &'static str) -> indicatif::Progres
     pb
 }
 
+/// Which task files are exactly as the manifest recorded them (size and mtime),
+/// by one `fstatat` each relative to its batch's directory: a re-expand with
+/// unchanged inputs is mostly this, and short relative lookups are much cheaper
+/// than walking every absolute path.
+fn unchanged_by_stat(root: &Path, plan: &Plan, man: &Manifest) -> Vec<bool> {
+    use nix::fcntl::AtFlags;
+    use std::os::fd::AsRawFd;
+    let per_batch: Vec<Vec<(TaskIndex, bool)>> = plan
+        .batches
+        .par_iter()
+        .map(|b| {
+            let Some(&first) = b.tasks.first() else {
+                return Vec::new();
+            };
+            // The replica folder (`<subject>/<leg>/r<k>`) holds every task of the batch.
+            let base: PathBuf = plan.tasks[first].dir.components().take(3).collect();
+            let dir = std::fs::File::open(root.join(&base)).ok();
+            b.tasks
+                .iter()
+                .map(|&t| {
+                    let rel = plan.tasks[t].dir.join(TASK_FILE);
+                    let ok = (|| {
+                        let dir = dir.as_ref()?;
+                        let e = man.entries.get(rel.to_str()?)?;
+                        let below = rel.strip_prefix(&base).ok()?;
+                        let st = nix::sys::stat::fstatat(
+                            Some(dir.as_raw_fd()),
+                            below,
+                            AtFlags::AT_SYMLINK_NOFOLLOW,
+                        )
+                        .ok()?;
+                        let is_file = st.st_mode & libc::S_IFMT == libc::S_IFREG;
+                        let mtime = st.st_mtime as u64 * 1_000_000_000 + st.st_mtime_nsec as u64;
+                        Some(is_file && st.st_size as u64 == e.size && mtime == e.mtime_ns)
+                    })();
+                    (t, ok == Some(true))
+                })
+                .collect()
+        })
+        .collect();
+    let mut out = vec![false; plan.tasks.len()];
+    for (t, ok) in per_batch.into_iter().flatten() {
+        out[t] = ok;
+    }
+    out
+}
+
+/// A symbolic link among the upper levels of the tree (subject, leg, replica)
+/// could send writes outside the root: refuse it.
+fn refuse_symlinked_dirs(root: &Path, plan: &Plan) -> Result<(), RenderError> {
+    let mut seen = std::collections::HashSet::new();
+    for b in &plan.batches {
+        let Some(&t) = b.tasks.first() else { continue };
+        let mut rel = PathBuf::new();
+        for (depth, c) in plan.tasks[t].dir.components().enumerate() {
+            if depth >= 3 {
+                break;
+            }
+            rel.push(c);
+            if seen.insert(rel.clone()) {
+                if let Ok(m) = std::fs::symlink_metadata(root.join(&rel)) {
+                    if m.file_type().is_symlink() {
+                        return Err(RenderError::Escape(rel));
+                    }
+                }
+            }
+        }
+    }
+    Ok(())
+}
+
 /// Renders every task of the plan into the tree under the campaign root.
 ///
 /// Every template is rendered before anything is written, so a template error
@@ -294,12 +477,25 @@ pub fn write_tree(
         return Err(RenderError::Escape(campaign.root.clone()));
     }
     let tera = templates::load_tera(campaign).map_err(RenderError::Templates)?;
-    let builder = ContextBuilder::new(campaign, plan);
+    refuse_symlinked_dirs(&campaign.root, plan)?;
+    let builder = ContextBuilder::for_rendering(campaign, plan);
     let mut man = Manifest::load(&campaign.root);
     let fp = fingerprint(campaign);
     let fast = !opts.force && man.fingerprint == fp;
+    let crashed = in_progress_path(&campaign.root).exists();
+    let flags = Flags {
+        fast,
+        force: opts.force,
+        dry_run: opts.dry_run,
+        crashed,
+    };
     let render = |i, a, r| render_one(&tera, &builder, campaign, plan, i, a, r);
 
+    let unchanged = if fast {
+        unchanged_by_stat(&campaign.root, plan, &man)
+    } else {
+        vec![false; plan.tasks.len()]
+    };
     let pb = progress_bar(
         opts.progress && plan.tasks.len() >= 200,
         plan.tasks.len(),
@@ -311,7 +507,18 @@ pub fn write_tree(
         .map(|chunk| {
             let out = chunk
                 .iter()
-                .map(|&i| decide(campaign, plan, i, &man, fast, opts.force, &render))
+                .map(|&i| {
+                    if unchanged[i] {
+                        Ok(Decision {
+                            rel: String::new(),
+                            action: Action::Unchanged,
+                            attempt: 1,
+                            restart: false,
+                        })
+                    } else {
+                        decide(campaign, plan, i, &man, flags, &render)
+                    }
+                })
                 .collect::<Result<Vec<_>, _>>();
             pb.inc(chunk.len() as u64);
             out
@@ -326,7 +533,7 @@ pub fn write_tree(
         dry_run: opts.dry_run,
         ..Default::default()
     };
-    let mut to_write: Vec<(&Decision, &String)> = Vec::new();
+    let mut to_write: Vec<&Decision> = Vec::new();
     let mut changed = man.fingerprint != fp;
     for d in &decisions {
         match &d.action {
@@ -339,26 +546,40 @@ pub fn write_tree(
                 }
             }
             Action::Protected => report.protected.push(PathBuf::from(&d.rel)),
-            Action::Write(c) => to_write.push((d, c)),
+            Action::Write(_) | Action::Create(_) => to_write.push(d),
         }
     }
-    report.written = to_write.len();
     if opts.dry_run {
+        report.written = to_write.len();
         return Ok(report);
+    }
+    let marker = in_progress_path(&campaign.root);
+    if !to_write.is_empty() {
+        let io = |source| RenderError::Io {
+            path: marker.clone(),
+            source,
+        };
+        std::fs::create_dir_all(marker.parent().expect("has a parent")).map_err(io)?;
+        std::fs::write(&marker, format!("{}\n", std::process::id())).map_err(io)?;
     }
     let pb = progress_bar(
         opts.progress && to_write.len() >= 200,
         to_write.len(),
         "writing",
     );
-    let results: Vec<Result<(String, Entry), RenderError>> = to_write
+    let results: Vec<Result<Outcome, RenderError>> = to_write
         .par_chunks(128)
         .flat_map_iter(|chunk| {
             let out: Vec<_> = chunk
                 .iter()
-                .map(|(d, c)| {
-                    let abs = campaign.root.join(&d.rel);
-                    write_atomic(&abs, c, d.attempt, d.restart).map(|e| (d.rel.clone(), e))
+                .map(|d| match &d.action {
+                    Action::Create(c) => create_new(&campaign.root, d, c, opts.force, crashed),
+                    Action::Write(c) => {
+                        let abs = campaign.root.join(&d.rel);
+                        write_atomic(&abs, c, d.attempt, d.restart)
+                            .map(|e| Outcome::Written(d.rel.clone(), e))
+                    }
+                    _ => unreachable!("only writes are queued"),
                 })
                 .collect();
             pb.inc(chunk.len() as u64);
@@ -369,15 +590,23 @@ pub fn write_tree(
     let mut first_err = None;
     for r in results {
         match r {
-            Ok((rel, e)) => {
+            Ok(Outcome::Written(rel, e)) => {
+                report.written += 1;
                 man.entries.insert(rel, e);
                 changed = true;
             }
+            Ok(Outcome::Adopted(rel, e)) => {
+                report.unchanged += 1;
+                man.entries.insert(rel, e);
+                changed = true;
+            }
+            Ok(Outcome::Protected(rel)) => report.protected.push(PathBuf::from(rel)),
             Err(e) => {
                 first_err.get_or_insert(e);
             }
         }
     }
+    report.protected.sort();
     if first_err.is_none() {
         man.fingerprint = fp;
     }
@@ -387,10 +616,28 @@ pub fn write_tree(
             source,
         })?;
     }
+    if first_err.is_none() && (changed || crashed) {
+        let _ = std::fs::remove_file(&marker);
+    }
     match first_err {
         Some(e) => Err(e),
         None => Ok(report),
     }
+}
+
+/// Renders (without writing) the first task of every stage × leg, so that `check`
+/// finds an undefined variable before `expand` does.
+pub fn probe(campaign: &Campaign, plan: &Plan) -> Result<(), RenderError> {
+    let tera = templates::load_tera(campaign).map_err(RenderError::Templates)?;
+    let builder = ContextBuilder::for_rendering(campaign, plan);
+    let mut seen = std::collections::HashSet::new();
+    for b in &plan.batches {
+        let Some(&t) = b.tasks.first() else { continue };
+        if seen.insert((b.stage.as_str(), plan.tasks[t].leg.as_str())) {
+            render_one(&tera, &builder, campaign, plan, t, 1, false)?;
+        }
+    }
+    Ok(())
 }
 
 /// Re-renders the `task.sh` of several tasks for a resubmission (attempt,
@@ -402,7 +649,7 @@ pub fn render_tasks(
     tasks: &[(TaskIndex, u32, bool)],
 ) -> Result<Vec<PathBuf>, RenderError> {
     let tera = templates::load_tera(campaign).map_err(RenderError::Templates)?;
-    let builder = ContextBuilder::new(campaign, plan);
+    let builder = ContextBuilder::for_rendering(campaign, plan);
     let mut man = Manifest::load(&campaign.root);
     let mut rendered = Vec::with_capacity(tasks.len());
     for &(i, attempt, restart) in tasks {

@@ -1,1 +1,181 @@
 //! Results tables (CSV, JSON), SVG plots and the HTML report.
+//!
+//! [`Results`] is the data model: [`LegReplica::from_estimate`] turns one leg
+//! replica's estimate into the report's entry, [`assemble`] builds the whole
+//! model from finished leg replicas, [`write_all`] writes `results/*.csv`, `results/summary.json` and
+//! `report/index.html` under the campaign root, [`load`] reads summary.json back
+//! for re-rendering, and [`print_summary`] writes the terminal summary.
+
+mod assemble;
+mod from_estimate;
+pub mod html;
+mod lenient;
+pub mod plots;
+mod results;
+mod summary;
+pub mod tables;
+
+pub use assemble::{assemble, leg_spec, AssembleError, CampaignInfo, MIN_OVERLAP};
+pub use from_estimate::method_name;
+pub use results::{
+    Convergence, LegReplica, MethodValue, MissingWork, Results, WindowSummary, RESULTS_SCHEMA,
+};
+pub use summary::print_summary;
+
+use std::path::{Path, PathBuf};
+
+/// What [`write_all`] wrote.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Written {
+    /// `<root>/results/`.
+    pub results_dir: PathBuf,
+    /// `<root>/report/index.html`.
+    pub html: PathBuf,
+    /// Every file written, in order.
+    pub files: Vec<PathBuf>,
+}
+
+/// Why the report could not be written or read.
+#[derive(Debug, thiserror::Error)]
+pub enum ReportError {
+    /// A plot failed.
+    #[error(transparent)]
+    Plot(#[from] plots::PlotError),
+    /// A file could not be written.
+    #[error("cannot write {path}: {source}")]
+    Write {
+        /// The file.
+        path: PathBuf,
+        /// Why.
+        source: std::io::Error,
+    },
+    /// summary.json could not be read.
+    #[error("cannot read {path}: {source}; run `legwork collect` first to produce it")]
+    Read {
+        /// The file.
+        path: PathBuf,
+        /// Why.
+        source: std::io::Error,
+    },
+    /// summary.json is not valid.
+    #[error("{path}:{line}:{column}: not a legwork results summary: {message}; re-create it with `legwork collect`")]
+    Parse {
+        /// The file.
+        path: PathBuf,
+        /// Line.
+        line: usize,
+        /// Column.
+        column: usize,
+        /// What serde said.
+        message: String,
+    },
+    /// summary.json has a newer layout.
+    #[error("{path}: results layout {found} is not the one this legwork reads ({RESULTS_SCHEMA}); re-create it with `legwork collect`")]
+    Schema {
+        /// The file.
+        path: PathBuf,
+        /// The layout version found.
+        found: u32,
+    },
+}
+
+/// `<root>/results/summary.json`.
+pub fn summary_path(root: &Path) -> PathBuf {
+    root.join("results").join("summary.json")
+}
+
+/// Writes every table, summary.json and report/index.html under `root`.
+/// Everything is rendered in memory first and each file is replaced atomically
+/// (temporary file + rename), so a failure leaves the previous files intact.
+pub fn write_all(root: &Path, r: &Results) -> Result<Written, ReportError> {
+    let results_dir = root.join("results");
+    let report_dir = root.join("report");
+    let html_path = report_dir.join("index.html");
+    let files: Vec<(PathBuf, String)> = vec![
+        (results_dir.join("legs.csv"), tables::legs_csv(r)),
+        (results_dir.join("edges.csv"), tables::edges_csv(r)),
+        (results_dir.join("ligands.csv"), tables::ligands_csv(r)),
+        (results_dir.join("cycles.csv"), tables::cycles_csv(r)),
+        (results_dir.join("summary.json"), tables::summary_json(r)),
+        (html_path.clone(), html::render(r)?),
+    ];
+    // Every temporary file first; only when all are written are they renamed
+    // into place, so a failure (disk full, a folder that cannot be made) leaves
+    // the previous results untouched.
+    let mut staged: Vec<(PathBuf, PathBuf)> = Vec::with_capacity(files.len());
+    for (path, text) in &files {
+        match stage(path, text) {
+            Ok(tmp) => staged.push((tmp, path.clone())),
+            Err(e) => {
+                for (tmp, _) in &staged {
+                    let _ = std::fs::remove_file(tmp);
+                }
+                return Err(e);
+            }
+        }
+    }
+    let mut written = Vec::with_capacity(staged.len());
+    for (tmp, path) in staged {
+        std::fs::rename(&tmp, &path).map_err(|source| {
+            let _ = std::fs::remove_file(&tmp);
+            ReportError::Write {
+                path: path.clone(),
+                source,
+            }
+        })?;
+        written.push(path);
+    }
+    Ok(Written {
+        results_dir,
+        html: html_path,
+        files: written,
+    })
+}
+
+/// Writes `text` next to `path` under a temporary name and returns that name.
+fn stage(path: &Path, text: &str) -> Result<PathBuf, ReportError> {
+    let err = |source| ReportError::Write {
+        path: path.to_path_buf(),
+        source,
+    };
+    if let Some(dir) = path.parent() {
+        std::fs::create_dir_all(dir).map_err(err)?;
+    }
+    let name = path.file_name().and_then(|n| n.to_str()).unwrap_or("out");
+    let tmp = path.with_file_name(format!(".{name}.tmp{}", std::process::id()));
+    std::fs::write(&tmp, text).map_err(err)?;
+    Ok(tmp)
+}
+
+/// Reads `<root>/results/summary.json` back.
+pub fn load(root: &Path) -> Result<Results, ReportError> {
+    load_file(&summary_path(root))
+}
+
+/// Reads a summary.json at `path`.
+pub fn load_file(path: &Path) -> Result<Results, ReportError> {
+    let text = std::fs::read_to_string(path).map_err(|source| ReportError::Read {
+        path: path.to_path_buf(),
+        source,
+    })?;
+    let probe: serde_json::Value = serde_json::from_str(&text).map_err(|e| ReportError::Parse {
+        path: path.to_path_buf(),
+        line: e.line(),
+        column: e.column(),
+        message: e.to_string(),
+    })?;
+    if let Some(found) = probe.get("schema").and_then(|s| s.as_u64()) {
+        if found as u32 != RESULTS_SCHEMA {
+            return Err(ReportError::Schema {
+                path: path.to_path_buf(),
+                found: found as u32,
+            });
+        }
+    }
+    serde_json::from_str(&text).map_err(|e| ReportError::Parse {
+        path: path.to_path_buf(),
+        line: e.line(),
+        column: e.column(),
+        message: e.to_string(),
+    })
+}

@@ -1,0 +1,207 @@
+//! The data model the report renders. [`Results`] is exactly what
+//! `results/summary.json` holds; `legwork report` reads it back and re-renders.
+
+use crate::cycle::{CampaignKind, EdgeResult};
+use crate::network::stats::Comparison;
+use crate::network::{CycleClosure, Hysteresis, LigandEstimate, Measured, Offset};
+use crate::units::EnergyUnit;
+use serde::{Deserialize, Serialize};
+
+/// Version of the summary.json layout, bumped on incompatible changes.
+pub const RESULTS_SCHEMA: u32 = 1;
+
+/// Everything a campaign's results tables and report show.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Results {
+    /// Layout version ([`RESULTS_SCHEMA`]).
+    pub schema: u32,
+    /// Campaign name.
+    pub campaign: String,
+    /// Relative, absolute or solvation.
+    pub kind: CampaignKind,
+    /// The campaign unit every energy below is in.
+    pub unit: EnergyUnit,
+    /// Temperature, K (spelled `temperature_K` as in the campaign file).
+    #[serde(rename = "temperature_K")]
+    pub temperature_k: f64,
+    /// Name of the headline estimator (e.g. `mbar`).
+    pub estimator: String,
+    /// When the results were assembled (RFC 3339), if known.
+    #[serde(default)]
+    pub generated_at: Option<String>,
+    /// One entry per finished leg replica.
+    pub legs: Vec<LegReplica>,
+    /// One entry per closed cycle: edges (relative) or ligands (absolute, solvation).
+    pub edges: Vec<EdgeResult>,
+    /// Per-ligand ΔG (network for relative campaigns, the cycle itself otherwise).
+    pub ligands: Vec<LigandEstimate>,
+    /// How the network's offset was fixed, per connected component (empty for absolute campaigns).
+    #[serde(default)]
+    pub offsets: Vec<Offset>,
+    /// Cycle closures of a cycle basis.
+    #[serde(default)]
+    pub cycles: Vec<CycleClosure>,
+    /// Edges run in both directions.
+    #[serde(default)]
+    pub hysteresis: Vec<Hysteresis>,
+    /// Measured values, converted to ΔG in the campaign unit.
+    #[serde(default)]
+    pub measured: Vec<Measured>,
+    /// Statistics against experiment, when there are measurements.
+    #[serde(default)]
+    pub statistics: Option<Comparison>,
+    /// Leg replicas that are not finished yet.
+    #[serde(default)]
+    pub missing: Vec<MissingWork>,
+    /// Campaign-level warnings.
+    #[serde(default)]
+    pub warnings: Vec<String>,
+}
+
+/// One estimator's answer for a leg replica.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct MethodValue {
+    /// Estimator name (`ti`, `ti_spline`, `exp_forward`, `exp_reverse`, `bar`, `mbar`).
+    pub method: String,
+    /// ΔG of the leg, campaign unit.
+    #[serde(deserialize_with = "super::lenient::f64")]
+    pub dg: f64,
+    /// Its σ.
+    #[serde(deserialize_with = "super::lenient::f64")]
+    pub sigma: f64,
+}
+
+/// One λ window of a leg replica (for a leg with several λ components, one
+/// entry per window and component).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct WindowSummary {
+    /// λ of the window's state (of `component`, when given).
+    pub lambda: f64,
+    /// The λ component this dU/dλ belongs to; absent for single-component legs.
+    #[serde(default)]
+    pub component: Option<String>,
+    /// Mean dU/dλ (of `component`), campaign unit per unit λ.
+    #[serde(deserialize_with = "super::lenient::f64")]
+    pub dudl_mean: f64,
+    /// Standard error of the mean dU/dλ (decorrelated).
+    #[serde(deserialize_with = "super::lenient::f64")]
+    pub dudl_sem: f64,
+    /// Frames read.
+    #[serde(default)]
+    pub frames: Option<u64>,
+    /// Frames discarded as equilibration.
+    #[serde(default)]
+    pub discarded: Option<u64>,
+    /// Statistical inefficiency g of the kept frames.
+    #[serde(default)]
+    pub inefficiency: Option<f64>,
+}
+
+/// ΔG estimated from growing fractions of the data, from the start (forward) and
+/// from the end (reverse).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Convergence {
+    /// Fraction of the data used for each point (0, 1].
+    #[serde(deserialize_with = "super::lenient::vec")]
+    pub fractions: Vec<f64>,
+    /// ΔG from the first fraction of every window.
+    #[serde(deserialize_with = "super::lenient::vec")]
+    pub forward: Vec<f64>,
+    /// σ of `forward`.
+    #[serde(deserialize_with = "super::lenient::vec")]
+    pub forward_sigma: Vec<f64>,
+    /// ΔG from the last fraction of every window.
+    #[serde(deserialize_with = "super::lenient::vec")]
+    pub reverse: Vec<f64>,
+    /// σ of `reverse`.
+    #[serde(deserialize_with = "super::lenient::vec")]
+    pub reverse_sigma: Vec<f64>,
+}
+
+/// One finished leg replica.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct LegReplica {
+    /// Subject id (`a~b` or a ligand id).
+    pub subject: String,
+    /// Leg name.
+    pub leg: String,
+    /// Replica number (from 1).
+    pub replica: u32,
+    /// Sign of the leg in its cycle (shown in the tables; [`crate::report::assemble`]
+    /// closes cycles with the campaign's own leg signs).
+    pub sign: f64,
+    /// ΔG of the headline estimator, campaign unit.
+    #[serde(deserialize_with = "super::lenient::f64")]
+    pub dg: f64,
+    /// Its σ.
+    #[serde(deserialize_with = "super::lenient::f64")]
+    pub sigma: f64,
+    /// Every estimator computed (the headline one included).
+    #[serde(default)]
+    pub methods: Vec<MethodValue>,
+    /// Overlap matrix (K × K, rows sum to 1).
+    #[serde(default, deserialize_with = "super::lenient::matrix")]
+    pub overlap: Vec<Vec<f64>>,
+    /// Smallest overlap between neighbouring states.
+    #[serde(default)]
+    pub min_adjacent_overlap: Option<f64>,
+    /// Per-window λ, dU/dλ and diagnostics, in state order.
+    #[serde(default)]
+    pub windows: Vec<WindowSummary>,
+    /// Forward and reverse convergence.
+    #[serde(default)]
+    pub convergence: Option<Convergence>,
+    /// Warnings from the estimators.
+    #[serde(default)]
+    pub warnings: Vec<String>,
+}
+
+/// A leg replica that has not finished.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct MissingWork {
+    /// Subject id.
+    pub subject: String,
+    /// Leg name.
+    pub leg: String,
+    /// Replica number.
+    pub replica: u32,
+    /// Windows with usable output.
+    pub windows_done: usize,
+    /// Windows the leg has.
+    pub windows_total: usize,
+    /// Why it is missing (e.g. "3 windows failed", "queued").
+    #[serde(default)]
+    pub note: String,
+}
+
+impl Results {
+    /// The campaign unit's size of 1 kcal/mol (for the ±1 kcal/mol band).
+    pub fn one_kcal(&self) -> f64 {
+        EnergyUnit::KcalPerMol.convert(1.0, self.unit, self.temperature_k)
+    }
+
+    /// Whether any measured value came from an IC50.
+    pub fn uses_ic50(&self) -> bool {
+        self.measured
+            .iter()
+            .any(|m| m.kind == crate::network::MeasuredKind::Ic50)
+    }
+
+    /// Ligands sorted from most to least favourable ΔG.
+    pub fn ranked_ligands(&self) -> Vec<&LigandEstimate> {
+        let mut v: Vec<&LigandEstimate> = self.ligands.iter().collect();
+        v.sort_by(|a, b| a.dg.total_cmp(&b.dg));
+        v
+    }
+
+    /// Edges sorted worst first: by |residual|/σ when the network ran, else by σ.
+    pub fn worst_edges(&self) -> Vec<&EdgeResult> {
+        let mut v: Vec<&EdgeResult> = self.edges.iter().collect();
+        let score = |e: &EdgeResult| match e.residual {
+            Some(r) if e.sigma > 0.0 => (r / e.sigma).abs(),
+            _ => e.sigma,
+        };
+        v.sort_by(|a, b| score(b).total_cmp(&score(a)));
+        v
+    }
+}

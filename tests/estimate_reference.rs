@@ -330,7 +330,7 @@ fn mbar_matches_the_numpy_reference_to_1e_8() {
         .map(std::path::PathBuf::from)
         .unwrap_or(bench.to_path_buf());
     if !bench.join("mbar_numpy.py").exists() {
-        eprintln!("SKIPPED: mbar_matches_the_numpy_reference_to_1e_8 needs the bench anchors (set LEGWORK_BENCH_DIR)");
+        skipped("mbar_matches_the_numpy_reference_to_1e_8 needs the bench anchors (set LEGWORK_BENCH_DIR)");
         return;
     }
     let d = tempfile::tempdir().unwrap();

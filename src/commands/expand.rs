@@ -1,9 +1,10 @@
 //! `legwork expand`: lay out the campaign's tree of task directories and scripts.
 
+use crate::campaign::Campaign;
 use crate::cli::Global;
 use crate::exit::Exit;
-use crate::plan;
-use crate::render::{self, RenderError, RenderOptions};
+use crate::plan::{self, Plan};
+use crate::render::{self, RenderError, RenderOptions, TreeReport};
 use std::io::IsTerminal;
 use std::path::PathBuf;
 
@@ -28,12 +29,25 @@ pub fn run(args: Args, global: &Global) -> anyhow::Result<()> {
     let loaded = super::check::load_or_exit(&args.file, args.root, false)?;
     let c = &loaded.campaign;
     let p = plan::expand(c);
+    lay_out(c, &p, args.force, args.dry_run, global)?;
+    Ok(())
+}
+
+/// Renders the tree of `plan` (the one place the verbs that lay out a tree do it),
+/// prints what was written and warns about task scripts edited by hand.
+pub fn lay_out(
+    c: &Campaign,
+    p: &Plan,
+    force: bool,
+    dry_run: bool,
+    global: &Global,
+) -> anyhow::Result<TreeReport> {
     let opts = RenderOptions {
-        force: args.force,
-        dry_run: args.dry_run,
+        force,
+        dry_run,
         progress: !global.quiet && std::io::stderr().is_terminal(),
     };
-    let report = match render::write_tree(c, &p, &opts) {
+    let report = match render::write_tree(c, p, &opts) {
         Ok(r) => r,
         Err(
             e @ (RenderError::Templates(_) | RenderError::Template { .. } | RenderError::Escape(_)),
@@ -69,5 +83,5 @@ pub fn run(args: Args, global: &Global) -> anyhow::Result<()> {
         }
         eprintln!("  hint: keep your edits in the template instead, or run `legwork expand --force` to overwrite them");
     }
-    Ok(())
+    Ok(report)
 }

@@ -1,16 +1,175 @@
-//! `legwork run`.
+//! `legwork run`: check → expand → submit → watch (resuming failed and lost
+//! tasks while attempts remain) → collect → report, in one go on the campaign's
+//! scheduler. Safe to run again: finished tasks are kept, unchanged scripts are
+//! not rewritten, and a rerun picks up where the last one stopped.
 
+use super::collect::{collect_with_state, print_outcome};
+use super::status::{state_exit, table};
+use super::watch::{campaign_hooks, Bars};
 use crate::cli::Global;
+use crate::exit::Exit;
+use crate::plan;
+use crate::report;
+use crate::scheduler::SchedulerKind;
+use crate::state::{self, interrupt, CampaignState, Context, Selection, Summary, TaskState};
 use std::path::PathBuf;
+use std::time::Duration;
 
 /// Options of `legwork run`.
 #[derive(Debug, clap::Args)]
 pub struct Args {
     /// The campaign file.
     pub file: PathBuf,
+    /// Put the tree here instead of the file's `root:`.
+    #[arg(long, value_name = "DIR")]
+    pub root: Option<PathBuf>,
+    /// Stop when tasks fail instead of resubmitting them (up to
+    /// scheduler.max_attempts) before collecting.
+    #[arg(long)]
+    pub no_resume: bool,
+    /// Seconds between polls (default: the campaign's scheduler.poll_seconds).
+    #[arg(long)]
+    pub interval: Option<f64>,
+    /// Seconds to wait for another legwork holding the campaign's lock.
+    #[arg(long, default_value_t = 10.0)]
+    pub lock_wait: f64,
 }
 
 /// Runs `legwork run`.
-pub fn run(args: Args, _global: &Global) -> anyhow::Result<()> {
-    anyhow::bail!("legwork run is not built yet ({})", args.file.display())
+pub fn run(args: Args, global: &Global) -> anyhow::Result<()> {
+    let stop = interrupt::install();
+    let loaded = super::check::load_or_exit(&args.file, args.root.clone(), false)?;
+    let campaign = loaded.campaign;
+    let plan = plan::expand(&campaign);
+    super::expand::lay_out(&campaign, &plan, false, false, global)?;
+
+    let mut state = CampaignState::open(
+        &campaign.root,
+        plan,
+        Duration::from_secs_f64(args.lock_wait.max(0.0)),
+    )
+    .map_err(state_exit)?;
+    let mut sched = crate::scheduler::build(&campaign.scheduler, &campaign.root, &campaign.name);
+    let hooks = campaign_hooks(campaign.clone());
+    let batch_template = campaign
+        .scheduler
+        .batch_template
+        .as_ref()
+        .map(|t| campaign.templates_dir.join(t));
+    let ctx = Context {
+        campaign: &campaign.name,
+        config: &campaign.scheduler,
+        batch_template,
+        hooks: hooks.as_ref(),
+    };
+    let interval = Duration::from_secs_f64(
+        args.interval
+            .unwrap_or(campaign.scheduler.poll_seconds)
+            .max(0.05),
+    );
+    let kind = sched.kind();
+    if !global.quiet {
+        eprintln!(
+            "{}: {} tasks on the {} scheduler; tree {}",
+            campaign.name,
+            state.plan().tasks.len(),
+            kind_name(kind),
+            campaign.root.display()
+        );
+    }
+
+    let bars = Bars::new(global.quiet);
+    let summary = loop {
+        let settled = state::watch_until_settled(
+            &mut state,
+            sched.as_mut(),
+            &ctx,
+            interval,
+            stop,
+            &mut |s| bars.update(s),
+        )
+        .map_err(state_exit)?;
+        if settled.interrupted {
+            bars.finish();
+            return Err(interrupted(&mut state, sched.as_mut(), kind, &args)?);
+        }
+        if settled.summary.all_done() || args.no_resume {
+            break settled.summary;
+        }
+        let r = state::resume(&mut state, sched.as_mut(), &ctx, &Selection::all())
+            .map_err(state_exit)?;
+        if r.requeued.is_empty() {
+            break Summary::with_limit(&state, campaign.scheduler.max_attempts);
+        }
+        tracing::info!(
+            "resubmitted {} failed or lost tasks ({} from a checkpoint)",
+            r.requeued.len(),
+            r.restarted
+        );
+    };
+    bars.finish();
+    if !global.quiet && !summary.all_done() {
+        eprint!("{}", table(&summary, kind, false));
+    }
+
+    let (results, counts) = collect_with_state(&campaign, &state, global)?;
+    let written = report::write_all(&campaign.root, &results)?;
+    print_outcome(&results, &counts, &written, global)?;
+    if summary.all_done() {
+        Ok(())
+    } else {
+        Err(Exit::incomplete(format!(
+            "{} of {} tasks are not done ({} failed, {} lost, {} cancelled); the results above cover what finished. \
+             See the reasons with `legwork status {file}`, then `legwork resume {file}` and `legwork collect {file}`",
+            summary.total.total() - summary.total.done,
+            summary.total.total(),
+            summary.total.failed,
+            summary.total.lost,
+            summary.total.cancelled,
+            file = args.file.display()
+        ))
+        .into())
+    }
+}
+
+/// Ctrl-C: with the local executor the tasks stop and are recorded as cancelled;
+/// on a cluster the jobs stay queued.
+fn interrupted(
+    state: &mut CampaignState,
+    sched: &mut dyn crate::scheduler::Scheduler,
+    kind: SchedulerKind,
+    args: &Args,
+) -> anyhow::Result<anyhow::Error> {
+    let file = args.file.display();
+    if kind == SchedulerKind::Local {
+        let r = state::cancel(
+            state,
+            sched,
+            &Selection {
+                states: vec![TaskState::Queued, TaskState::Running],
+                ..Default::default()
+            },
+            "interrupted (Ctrl-C during legwork run)",
+        )
+        .map_err(state_exit)?;
+        return Ok(Exit::interrupted(format!(
+            "interrupted: stopped {} local tasks and recorded them as cancelled; `legwork resume {file} --state cancelled` runs them again, and `legwork run {file}` then carries on",
+            r.live
+        ))
+        .into());
+    }
+    Ok(Exit::interrupted(format!(
+        "interrupted: the jobs carry on in the queue; `legwork run {file}` (or `legwork watch {file}`) follows them again"
+    ))
+    .into())
+}
+
+fn kind_name(kind: SchedulerKind) -> &'static str {
+    match kind {
+        SchedulerKind::Local => "local",
+        SchedulerKind::Slurm => "Slurm",
+        SchedulerKind::Pbs => "PBS",
+        SchedulerKind::Sge => "Grid Engine",
+        SchedulerKind::Lsf => "LSF",
+    }
 }

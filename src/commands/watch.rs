@@ -183,14 +183,14 @@ pub fn run(args: Args, global: &Global) -> anyhow::Result<()> {
 }
 
 /// Progress bars: one per leg and one overall, counting done tasks.
-struct Bars {
+pub(crate) struct Bars {
     multi: MultiProgress,
     overall: ProgressBar,
     legs: std::cell::RefCell<HashMap<String, ProgressBar>>,
 }
 
 impl Bars {
-    fn new(quiet: bool) -> Bars {
+    pub(crate) fn new(quiet: bool) -> Bars {
         let multi = MultiProgress::with_draw_target(if quiet {
             ProgressDrawTarget::hidden()
         } else {
@@ -206,7 +206,7 @@ impl Bars {
         }
     }
 
-    fn update(&self, s: &Summary) {
+    pub(crate) fn update(&self, s: &Summary) {
         let mut per_leg: Vec<(String, usize, usize, String)> = Vec::new();
         for (key, c) in &s.groups {
             let leg = key.split('/').next().unwrap_or(key).to_string();
@@ -238,7 +238,7 @@ impl Bars {
         self.overall.set_message(counts_msg(&s.total));
     }
 
-    fn finish(&self) {
+    pub(crate) fn finish(&self) {
         for b in self.legs.borrow().values() {
             b.abandon();
         }
@@ -285,4 +285,10 @@ fn counts_msg(c: &state::summary::Counts) -> String {
         }
     }
     parts.join(", ")
+}
+
+/// The task hooks of a loaded campaign: done means the stage output validates
+/// with the campaign's reader; reruns are re-rendered from its templates.
+pub fn campaign_hooks(campaign: crate::campaign::Campaign) -> Box<dyn TaskHooks> {
+    Box::new(CampaignHooks { campaign })
 }

@@ -339,6 +339,21 @@ fn unknown_key_in_a_section_owned_elsewhere() {
 }
 
 #[test]
+fn wrong_type_in_a_section_owned_elsewhere_points_at_the_value() {
+    let yaml = edited(
+        "seed: 1\n",
+        "seed: 1\nscheduler:\n  kind: slurm\n  max_queued: lots\n",
+    );
+    let (_d, err) = load_err(&yaml);
+    let e = err.errors().next().unwrap();
+    assert!(
+        e.message.contains("in scheduler") && e.message.contains("invalid type"),
+        "{err}"
+    );
+    assert_eq!((e.line, e.col), (5, 15), "{err}");
+}
+
+#[test]
 fn walltime_that_does_not_parse() {
     assert_error(
         &edited("walltime: 1h", "walltime: 1 hour"),

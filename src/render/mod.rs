@@ -483,6 +483,19 @@ pub fn write_tree(
     let fp = fingerprint(campaign);
     let fast = !opts.force && man.fingerprint == fp;
     let crashed = in_progress_path(&campaign.root).exists();
+    tracing::debug!(
+        tasks = plan.tasks.len(),
+        manifest_entries = man.entries.len(),
+        fast,
+        crashed,
+        "rendering the tree under {}",
+        campaign.root.display()
+    );
+    if crashed {
+        tracing::warn!(
+            "a previous expand stopped while writing; files it may have half-written are replaced"
+        );
+    }
     let flags = Flags {
         fast,
         force: opts.force,
@@ -607,6 +620,12 @@ pub fn write_tree(
         }
     }
     report.protected.sort();
+    tracing::debug!(
+        written = report.written,
+        unchanged = report.unchanged,
+        protected = report.protected.len(),
+        "tree rendered"
+    );
     if first_err.is_none() {
         man.fingerprint = fp;
     }

@@ -530,3 +530,43 @@ fn check_json_lists_the_problems() {
     assert_eq!(v["diagnostics"][0]["line"], 13);
     assert_eq!(v["diagnostics"][0]["severity"], "error");
 }
+
+#[test]
+fn ligand_yaml_file_errors_carry_its_line() {
+    let (dir, file) = setup(&edited(
+        "ligands:\n  - id: a\n  - id: b\n  - id: c\n",
+        "ligands: ligs.yaml\n\n\n\n",
+    ));
+    std::fs::write(
+        dir.path().join("ligs.yaml"),
+        "- a\n- { id: b, vars: { charge: 1 } }\n- { id: \"c d\" }\n",
+    )
+    .unwrap();
+    let err = campaign::load(&file, &LoadOptions::default()).unwrap_err();
+    let d = err
+        .errors()
+        .find(|d| d.message.contains("'c d' is not a safe id"))
+        .expect("reported");
+    assert!(d.file.ends_with("ligs.yaml"));
+    assert_eq!(d.line, 3, "{err}");
+}
+
+#[test]
+fn edge_csv_errors_carry_the_csv_line() {
+    let (dir, file) = setup(&edited(
+        "edges:\n  - [a, b]\n  - [b, c]\n",
+        "edges: edges.csv\n\n\n",
+    ));
+    std::fs::write(
+        dir.path().join("edges.csv"),
+        "a,b,mapping\na,b,m1\nb,q,m2\n",
+    )
+    .unwrap();
+    let err = campaign::load(&file, &LoadOptions::default()).unwrap_err();
+    let d = err
+        .errors()
+        .find(|d| d.message.contains("unknown ligand 'q'"))
+        .expect("reported");
+    assert!(d.file.ends_with("edges.csv"));
+    assert_eq!(d.line, 3, "{err}");
+}

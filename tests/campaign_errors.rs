@@ -339,6 +339,21 @@ fn unknown_key_in_a_section_owned_elsewhere() {
 }
 
 #[test]
+fn wrong_type_in_a_section_owned_elsewhere_points_at_the_value() {
+    let yaml = edited(
+        "seed: 1\n",
+        "seed: 1\nscheduler:\n  kind: slurm\n  max_queued: lots\n",
+    );
+    let (_d, err) = load_err(&yaml);
+    let e = err.errors().next().unwrap();
+    assert!(
+        e.message.contains("in scheduler") && e.message.contains("invalid type"),
+        "{err}"
+    );
+    assert_eq!((e.line, e.col), (5, 15), "{err}");
+}
+
+#[test]
 fn walltime_that_does_not_parse() {
     assert_error(
         &edited("walltime: 1h", "walltime: 1 hour"),
@@ -514,4 +529,44 @@ fn check_json_lists_the_problems() {
     assert_eq!(v["ok"], false);
     assert_eq!(v["diagnostics"][0]["line"], 13);
     assert_eq!(v["diagnostics"][0]["severity"], "error");
+}
+
+#[test]
+fn ligand_yaml_file_errors_carry_its_line() {
+    let (dir, file) = setup(&edited(
+        "ligands:\n  - id: a\n  - id: b\n  - id: c\n",
+        "ligands: ligs.yaml\n\n\n\n",
+    ));
+    std::fs::write(
+        dir.path().join("ligs.yaml"),
+        "- a\n- { id: b, vars: { charge: 1 } }\n- { id: \"c d\" }\n",
+    )
+    .unwrap();
+    let err = campaign::load(&file, &LoadOptions::default()).unwrap_err();
+    let d = err
+        .errors()
+        .find(|d| d.message.contains("'c d' is not a safe id"))
+        .expect("reported");
+    assert!(d.file.ends_with("ligs.yaml"));
+    assert_eq!(d.line, 3, "{err}");
+}
+
+#[test]
+fn edge_csv_errors_carry_the_csv_line() {
+    let (dir, file) = setup(&edited(
+        "edges:\n  - [a, b]\n  - [b, c]\n",
+        "edges: edges.csv\n\n\n",
+    ));
+    std::fs::write(
+        dir.path().join("edges.csv"),
+        "a,b,mapping\na,b,m1\nb,q,m2\n",
+    )
+    .unwrap();
+    let err = campaign::load(&file, &LoadOptions::default()).unwrap_err();
+    let d = err
+        .errors()
+        .find(|d| d.message.contains("unknown ligand 'q'"))
+        .expect("reported");
+    assert!(d.file.ends_with("edges.csv"));
+    assert_eq!(d.line, 3, "{err}");
 }

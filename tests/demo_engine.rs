@@ -845,7 +845,7 @@ fn render(template: &str, ctx: &serde_json::Value) -> String {
         .unwrap()
 }
 
-/// A CONTRACT §3 context for edge ork-01~ork-05, leg complex, replica 1.
+/// A stage-template context (README, "Templates and their variables") for edge ork-01~ork-05, leg complex, replica 1.
 fn stage_context(
     root: &Path,
     stage: &str,
@@ -909,7 +909,7 @@ fn bash(script: &str, dir: &Path) -> std::process::Output {
 #[test]
 fn the_demo_stage_templates_run_the_engine() {
     // prepare, then one production window, rendered from the shipped templates with a
-    // CONTRACT §3 context (in a directory with a space, to exercise the quoting).
+    // A stage-template context (in a directory with a space, to exercise the quoting).
     let tmp = tempfile::tempdir().unwrap();
     let root = tmp.path().join("orrin demo");
     let prep = stage_context(&root, "prepare", None, serde_json::json!({}));

@@ -668,3 +668,24 @@ fn a_file_half_written_by_a_crashed_expand_is_replaced() {
     let r = write(&c, false);
     assert_eq!(r.protected, vec![PathBuf::from(rel)]);
 }
+
+#[test]
+fn files_of_tasks_no_longer_planned_are_reported_and_kept() {
+    let (dir, c) = basic();
+    write(&c, false);
+    let f = dir.path().join("campaign.yaml");
+    let text = std::fs::read_to_string(&f)
+        .unwrap()
+        .replace("    replicas: 2\n", "    replicas: 1\n");
+    std::fs::write(&f, text).unwrap();
+    let c = load(dir.path());
+    let r = write(&c, false);
+    // replica 2 of complex: 2 edges × (5 windows + 1 prepare)
+    assert_eq!(r.stale.len(), 12);
+    assert!(r
+        .stale
+        .iter()
+        .all(|p| p.to_string_lossy().contains("/complex/r2/")));
+    assert!(c.root.join(&r.stale[0]).exists(), "left in place");
+    assert_eq!(r.written, 0);
+}

@@ -1,4 +1,4 @@
-//! Reading measured affinities (CONTRACT §5) and converting them to ΔG.
+//! Reading measured affinities (format in the README, "Results and the report") and converting them to ΔG.
 
 use legwork::network::experiment::{
     dg_from_constant_kj, parse_measured, read_measured, ExperimentError, IC50_NOTE,

@@ -141,6 +141,12 @@ fn leg_is_sorted_and_checked_for_consistency() {
         .to_string();
     assert!(e.contains("state(s) [0]"), "{e}");
 
+    let empty = write(d.path(), "e.tsv", &table(0, "0 1", "kT", ""));
+    let e = read_leg(&[a.clone(), empty], &ReaderConfig::default())
+        .unwrap_err()
+        .to_string();
+    assert!(e.contains("e.tsv: no data lines"), "{e}");
+
     let a2 = write(d.path(), "a2.tsv", &table(1, "0 1", "kT", "0\t1\t0\t1\n"));
     let e = read_leg(&[a, a2, b], &ReaderConfig::default())
         .unwrap_err()

@@ -49,7 +49,7 @@ fn tables_have_the_agreed_columns_and_values() {
     assert_eq!(w.html, dir.path().join("report/index.html"));
     assert_eq!(w.files.len(), 6);
 
-    // edges.csv: at least ligand_a, ligand_b, ddg, sigma (CONTRACT), in the campaign unit.
+    // edges.csv: at least ligand_a, ligand_b, ddg, sigma, in the campaign unit.
     let (h, rows) = read_csv(&dir.path().join("results/edges.csv"));
     for c in [
         "ligand_a",

@@ -558,12 +558,33 @@ fn parse_shared<T: serde::de::DeserializeOwned + Default>(
                         });
                     (find_text(node, word).unwrap_or(node.pos), hint)
                 }
-                _ => (node.pos, None),
+                _ => (locate_bad_key::<T>(node).unwrap_or(node.pos), None),
             };
+            let hint = hint.or_else(|| {
+                Some(format!(
+                    "see the {what} table in the README's campaign section"
+                ))
+            });
             ctx.error(pos, format!("in {what}: {msg}"), hint);
             T::default()
         }
     }
+}
+
+/// The value of the first key that fails to deserialise on its own (missing
+/// other fields aside), for a type error serde reports without a position.
+fn locate_bad_key<T: serde::de::DeserializeOwned>(node: &Node) -> Option<Pos> {
+    let Value::Map(entries) = &node.value else {
+        return None;
+    };
+    entries.iter().find_map(|(k, v)| {
+        let mut one = serde_json::Map::new();
+        one.insert(k.key_text(), v.to_json());
+        match serde_json::from_value::<T>(serde_json::Value::Object(one)) {
+            Err(e) if !e.to_string().starts_with("missing field") => Some(v.pos),
+            _ => None,
+        }
+    })
 }
 
 fn between_backticks(s: &str) -> Option<String> {

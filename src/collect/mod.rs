@@ -104,6 +104,12 @@ pub fn read_leg_with(
 /// lists, temperature and state count, one window per state, none missing.
 pub fn assemble(mut windows: Vec<WindowSamples>) -> Result<LegSamples, ReadError> {
     windows.sort_by_key(|w| w.state);
+    if let Some(w) = windows.iter().find(|w| w.frames == 0) {
+        return Err(ReadError::Leg(format!(
+            "{}: no data lines, only the header (the window has not written a frame yet); rerun or finish that window",
+            w.source.display()
+        )));
+    }
     let first = &windows[0];
     let k = first.n_states;
     for w in &windows[1..] {

@@ -56,6 +56,13 @@ pub fn run(args: Args, global: &Global) -> anyhow::Result<()> {
             c.root.display()
         );
     }
+    if !report.stale.is_empty() {
+        eprintln!(
+            "note: {} task script(s) written earlier belong to tasks the campaign no longer has; they were left in place, e.g. {}",
+            report.stale.len(),
+            c.root.join(&report.stale[0]).display()
+        );
+    }
     if !report.protected.is_empty() {
         eprintln!(
             "warning: {} task script(s) were edited by hand and were not overwritten:",

@@ -238,7 +238,7 @@ impl ExactTables {
         s
     }
 
-    /// `measured.csv` (CONTRACT §5): invented "measurements": the exact ΔG shifted to a
+    /// `measured.csv` (the format of README, "Results and the report"): invented "measurements": the exact ΔG shifted to a
     /// plausible absolute level `baseline` (kcal/mol), plus normal noise of standard
     /// deviation `noise` drawn from `seed`; every other ligand is given as a Ki in nM
     /// (ΔG = RT ln(Ki / 1 M)) at `temperature_k`.

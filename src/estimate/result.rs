@@ -143,6 +143,17 @@ pub struct LegEstimate {
 }
 
 impl LegEstimate {
+    /// MBAR's G(j) − G(i) (kT) and its standard error from the covariance.
+    pub fn mbar_difference(&self, i: usize, j: usize) -> Option<DeltaG> {
+        let m = self.mbar.as_ref()?;
+        let c = &m.covariance;
+        let var = c[i][i] + c[j][j] - 2.0 * c[i][j];
+        Some(DeltaG {
+            delta_g: m.f[j] - m.f[i],
+            sigma: var.max(0.0).sqrt(),
+        })
+    }
+
     /// ΔG ± σ of `method` in `unit`.
     pub fn delta_g_in(&self, method: Method, unit: EnergyUnit) -> Option<DeltaG> {
         self.estimates

@@ -47,6 +47,9 @@ pub struct TreeReport {
     pub protected: Vec<PathBuf>,
     /// Whether anything was actually written.
     pub dry_run: bool,
+    /// Task files legwork wrote earlier for tasks the campaign no longer has
+    /// (relative to the root); left in place.
+    pub stale: Vec<PathBuf>,
 }
 
 /// Rendering failed; nothing was written.
@@ -440,6 +443,29 @@ fn unchanged_by_stat(root: &Path, plan: &Plan, man: &Manifest) -> Vec<bool> {
     out
 }
 
+/// Manifest entries no task of the plan has. Counting first keeps the usual case
+/// (every entry is a task) to one lookup per task.
+fn stale_files(plan: &Plan, man: &Manifest) -> Vec<PathBuf> {
+    let rels: Vec<String> = plan
+        .tasks
+        .iter()
+        .map(|t| t.dir.join(TASK_FILE).to_string_lossy().into_owned())
+        .collect();
+    let known = rels.iter().filter(|r| man.entries.contains_key(*r)).count();
+    if known == man.entries.len() {
+        return Vec::new();
+    }
+    let planned: std::collections::HashSet<&str> = rels.iter().map(String::as_str).collect();
+    let mut stale: Vec<PathBuf> = man
+        .entries
+        .keys()
+        .filter(|k| !planned.contains(k.as_str()))
+        .map(PathBuf::from)
+        .collect();
+    stale.sort();
+    stale
+}
+
 /// A symbolic link among the upper levels of the tree (subject, leg, replica)
 /// could send writes outside the root: refuse it.
 fn refuse_symlinked_dirs(root: &Path, plan: &Plan) -> Result<(), RenderError> {
@@ -483,6 +509,19 @@ pub fn write_tree(
     let fp = fingerprint(campaign);
     let fast = !opts.force && man.fingerprint == fp;
     let crashed = in_progress_path(&campaign.root).exists();
+    tracing::debug!(
+        tasks = plan.tasks.len(),
+        manifest_entries = man.entries.len(),
+        fast,
+        crashed,
+        "rendering the tree under {}",
+        campaign.root.display()
+    );
+    if crashed {
+        tracing::warn!(
+            "a previous expand stopped while writing; files it may have half-written are replaced"
+        );
+    }
     let flags = Flags {
         fast,
         force: opts.force,
@@ -533,6 +572,7 @@ pub fn write_tree(
         dry_run: opts.dry_run,
         ..Default::default()
     };
+    report.stale = stale_files(plan, &man);
     let mut to_write: Vec<&Decision> = Vec::new();
     let mut changed = man.fingerprint != fp;
     for d in &decisions {
@@ -607,6 +647,12 @@ pub fn write_tree(
         }
     }
     report.protected.sort();
+    tracing::debug!(
+        written = report.written,
+        unchanged = report.unchanged,
+        protected = report.protected.len(),
+        "tree rendered"
+    );
     if first_err.is_none() {
         man.fingerprint = fp;
     }

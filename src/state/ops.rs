@@ -417,6 +417,8 @@ pub fn resume(
     poll(state, sched, ctx)?;
     let mut summary = ResumeSummary::default();
     let with_cancelled = sel.states.contains(&TaskState::Cancelled);
+    let mut render = Vec::new();
+    let mut events = Vec::new();
     for ti in 0..state.plan.tasks.len() {
         let st = state.state(ti);
         let eligible = matches!(st, TaskState::Failed | TaskState::Lost)
@@ -432,12 +434,7 @@ pub fn resume(
         }
         let dir = state.task_dir(task);
         let restart = ctx.hooks.has_checkpoint(&state.plan, ti, &dir);
-        ctx.hooks
-            .prepare_attempt(&state.plan, ti, r.attempt + 1, restart)
-            .map_err(|detail| StateError::Task {
-                task: task.id.clone(),
-                detail,
-            })?;
+        render.push((ti, r.attempt + 1, restart));
         let walltime_s = (r.kind == Some(FailureKind::Walltime)).then(|| {
             let now = r.walltime_s.unwrap_or(0).max(task.resources.walltime_s);
             ((now as f64) * ctx.config.walltime_factor.max(1.0)).ceil() as u64
@@ -445,7 +442,7 @@ pub fn resume(
         summary.restarted += restart as usize;
         summary.walltime_raised += walltime_s.is_some() as usize;
         summary.requeued.push(task.id.clone());
-        state.record_event(Event::Task {
+        events.push(Event::Task {
             task: task.id.clone(),
             state: TaskState::Planned,
             attempt: r.attempt,
@@ -453,6 +450,17 @@ pub fn resume(
             kind: None,
             walltime_s,
         });
+    }
+    // Scripts first: a task goes back to the plan only once its next attempt's
+    // script is in place.
+    ctx.hooks
+        .prepare_attempts(&state.plan, &render)
+        .map_err(|detail| StateError::Task {
+            task: format!("{} tasks", render.len()),
+            detail,
+        })?;
+    for e in events {
+        state.record_event(e);
     }
     state.commit()?;
     let mut submit_sel = sel.clone();

@@ -417,6 +417,13 @@ pub fn resume(
     poll(state, sched, ctx)?;
     let mut summary = ResumeSummary::default();
     let with_cancelled = sel.states.contains(&TaskState::Cancelled);
+    // A cancelled attempt may still be ending in the queue (Slurm's COMPLETING):
+    // such tasks wait for a later resume rather than run twice at once.
+    let still_ending = if with_cancelled {
+        cancelled_still_in_queue(state, sched)?
+    } else {
+        Default::default()
+    };
     let mut render = Vec::new();
     let mut events = Vec::new();
     for ti in 0..state.plan.tasks.len() {
@@ -424,7 +431,7 @@ pub fn resume(
         let eligible = matches!(st, TaskState::Failed | TaskState::Lost)
             || (with_cancelled && st == TaskState::Cancelled);
         let task = &state.plan.tasks[ti];
-        if !eligible || !sel.matches(task, st) {
+        if !eligible || !sel.matches(task, st) || still_ending.contains(&ti) {
             continue;
         }
         let r = state.record(ti);
@@ -467,6 +474,47 @@ pub fn resume(
     submit_sel.states.clear();
     summary.submitted = submit_ready(state, sched, ctx, &submit_sel)?;
     Ok(summary)
+}
+
+/// Cancelled tasks whose last attempt the scheduler still lists as live.
+fn cancelled_still_in_queue(
+    state: &CampaignState,
+    sched: &mut dyn Scheduler,
+) -> Result<BTreeSet<TaskIndex>, StateError> {
+    let mut elements: Vec<(TaskIndex, String, String)> = Vec::new();
+    for (ti, task) in state.plan.tasks.iter().enumerate() {
+        let Some(r) = state.data.tasks.get(&task.id) else {
+            continue;
+        };
+        if r.state != TaskState::Cancelled {
+            continue;
+        }
+        let Some(s) = r.submission.and_then(|n| state.data.submissions.get(&n)) else {
+            continue;
+        };
+        let (Some(job), Some(t)) = (
+            s.job.clone().filter(|j| !j.is_empty()),
+            s.tasks.iter().find(|t| t.task == task.id),
+        ) else {
+            continue;
+        };
+        elements.push((ti, sched.element_id(&job, t.index), job));
+    }
+    if elements.is_empty() {
+        return Ok(BTreeSet::new());
+    }
+    let jobs: Vec<String> = elements
+        .iter()
+        .map(|e| e.2.clone())
+        .collect::<BTreeSet<_>>()
+        .into_iter()
+        .collect();
+    let result = sched.query(&jobs)?;
+    Ok(elements
+        .into_iter()
+        .filter(|(_, e, _)| result.elements.get(e).is_some_and(|s| s.state.is_live()))
+        .map(|(ti, _, _)| ti)
+        .collect())
 }
 
 /// Cancels the selected queued and running tasks in the scheduler and marks the

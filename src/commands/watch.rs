@@ -110,6 +110,15 @@ impl TaskHooks for CampaignHooks {
             .map(|_| ())
             .map_err(|e| e.to_string())
     }
+
+    fn prepare_attempts(&self, plan: &Plan, tasks: &[(usize, u32, bool)]) -> Result<(), String> {
+        if tasks.is_empty() {
+            return Ok(());
+        }
+        crate::render::render_tasks(&self.campaign, plan, tasks)
+            .map(|_| ())
+            .map_err(|e| e.to_string())
+    }
 }
 
 /// Runs `legwork watch`.

@@ -157,6 +157,21 @@ pub trait TaskHooks {
         restart: bool,
     ) -> Result<(), String>;
 
+    /// Re-renders several tasks at once: (task, attempt, restart). Default: one
+    /// [`TaskHooks::prepare_attempt`] each; override when rendering has a fixed
+    /// cost per call (templates, manifest).
+    fn prepare_attempts(
+        &self,
+        plan: &Plan,
+        tasks: &[(TaskIndex, u32, bool)],
+    ) -> Result<(), String> {
+        for &(t, attempt, restart) in tasks {
+            self.prepare_attempt(plan, t, attempt, restart)
+                .map_err(|e| format!("{}: {e}", plan.tasks[t].id))?;
+        }
+        Ok(())
+    }
+
     /// Whether the task left a checkpoint to restart from. Default: a file in its
     /// directory whose name starts with `checkpoint` or ends in `.ckpt`, `.cpt` or
     /// `.chk` (common practice, no source).

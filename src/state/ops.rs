@@ -417,12 +417,21 @@ pub fn resume(
     poll(state, sched, ctx)?;
     let mut summary = ResumeSummary::default();
     let with_cancelled = sel.states.contains(&TaskState::Cancelled);
+    // A cancelled attempt may still be ending in the queue (Slurm's COMPLETING):
+    // such tasks wait for a later resume rather than run twice at once.
+    let still_ending = if with_cancelled {
+        cancelled_still_in_queue(state, sched)?
+    } else {
+        Default::default()
+    };
+    let mut render = Vec::new();
+    let mut events = Vec::new();
     for ti in 0..state.plan.tasks.len() {
         let st = state.state(ti);
         let eligible = matches!(st, TaskState::Failed | TaskState::Lost)
             || (with_cancelled && st == TaskState::Cancelled);
         let task = &state.plan.tasks[ti];
-        if !eligible || !sel.matches(task, st) {
+        if !eligible || !sel.matches(task, st) || still_ending.contains(&ti) {
             continue;
         }
         let r = state.record(ti);
@@ -432,12 +441,7 @@ pub fn resume(
         }
         let dir = state.task_dir(task);
         let restart = ctx.hooks.has_checkpoint(&state.plan, ti, &dir);
-        ctx.hooks
-            .prepare_attempt(&state.plan, ti, r.attempt + 1, restart)
-            .map_err(|detail| StateError::Task {
-                task: task.id.clone(),
-                detail,
-            })?;
+        render.push((ti, r.attempt + 1, restart));
         let walltime_s = (r.kind == Some(FailureKind::Walltime)).then(|| {
             let now = r.walltime_s.unwrap_or(0).max(task.resources.walltime_s);
             ((now as f64) * ctx.config.walltime_factor.max(1.0)).ceil() as u64
@@ -445,7 +449,7 @@ pub fn resume(
         summary.restarted += restart as usize;
         summary.walltime_raised += walltime_s.is_some() as usize;
         summary.requeued.push(task.id.clone());
-        state.record_event(Event::Task {
+        events.push(Event::Task {
             task: task.id.clone(),
             state: TaskState::Planned,
             attempt: r.attempt,
@@ -454,11 +458,63 @@ pub fn resume(
             walltime_s,
         });
     }
+    // Scripts first: a task goes back to the plan only once its next attempt's
+    // script is in place.
+    ctx.hooks
+        .prepare_attempts(&state.plan, &render)
+        .map_err(|detail| StateError::Task {
+            task: format!("{} tasks", render.len()),
+            detail,
+        })?;
+    for e in events {
+        state.record_event(e);
+    }
     state.commit()?;
     let mut submit_sel = sel.clone();
     submit_sel.states.clear();
     summary.submitted = submit_ready(state, sched, ctx, &submit_sel)?;
     Ok(summary)
+}
+
+/// Cancelled tasks whose last attempt the scheduler still lists as live.
+fn cancelled_still_in_queue(
+    state: &CampaignState,
+    sched: &mut dyn Scheduler,
+) -> Result<BTreeSet<TaskIndex>, StateError> {
+    let mut elements: Vec<(TaskIndex, String, String)> = Vec::new();
+    for (ti, task) in state.plan.tasks.iter().enumerate() {
+        let Some(r) = state.data.tasks.get(&task.id) else {
+            continue;
+        };
+        if r.state != TaskState::Cancelled {
+            continue;
+        }
+        let Some(s) = r.submission.and_then(|n| state.data.submissions.get(&n)) else {
+            continue;
+        };
+        let (Some(job), Some(t)) = (
+            s.job.clone().filter(|j| !j.is_empty()),
+            s.tasks.iter().find(|t| t.task == task.id),
+        ) else {
+            continue;
+        };
+        elements.push((ti, sched.element_id(&job, t.index), job));
+    }
+    if elements.is_empty() {
+        return Ok(BTreeSet::new());
+    }
+    let jobs: Vec<String> = elements
+        .iter()
+        .map(|e| e.2.clone())
+        .collect::<BTreeSet<_>>()
+        .into_iter()
+        .collect();
+    let result = sched.query(&jobs)?;
+    Ok(elements
+        .into_iter()
+        .filter(|(_, e, _)| result.elements.get(e).is_some_and(|s| s.state.is_live()))
+        .map(|(ti, _, _)| ti)
+        .collect())
 }
 
 /// Cancels the selected queued and running tasks in the scheduler and marks the

@@ -10,6 +10,9 @@ use std::path::PathBuf;
 pub struct Args {
     /// The campaign file.
     pub file: PathBuf,
+    /// The campaign's tree is here instead of the file's `root:`.
+    #[arg(long, value_name = "DIR")]
+    pub root: Option<PathBuf>,
     /// Which tasks (default: every queued, running and planned one).
     #[command(flatten)]
     pub select: SelectArgs,
@@ -20,7 +23,7 @@ pub struct Args {
 
 /// Runs `legwork cancel`.
 pub fn run(args: Args, global: &Global) -> anyhow::Result<()> {
-    with_campaign(&args.file, args.lock_wait, global, |c| {
+    with_campaign(&args.file, args.root.clone(), args.lock_wait, global, |c| {
         let r = crate::state::cancel(
             c.state,
             c.sched.as_mut(),

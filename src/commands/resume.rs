@@ -12,6 +12,9 @@ use std::path::PathBuf;
 pub struct Args {
     /// The campaign file.
     pub file: PathBuf,
+    /// The campaign's tree is here instead of the file's `root:`.
+    #[arg(long, value_name = "DIR")]
+    pub root: Option<PathBuf>,
     /// Which tasks (default: every failed and lost one; add `--state cancelled`
     /// to rerun cancelled ones too).
     #[command(flatten)]
@@ -23,7 +26,7 @@ pub struct Args {
 
 /// Runs `legwork resume`.
 pub fn run(args: Args, global: &Global) -> anyhow::Result<()> {
-    with_campaign(&args.file, args.lock_wait, global, |c| {
+    with_campaign(&args.file, args.root.clone(), args.lock_wait, global, |c| {
         let sel = args.select.selection();
         let r =
             crate::state::resume(c.state, c.sched.as_mut(), &c.ctx, &sel).map_err(state_exit)?;

@@ -4,15 +4,16 @@
 //! not rewritten, and a rerun picks up where the last one stopped.
 
 use super::collect::{collect_with_state, print_outcome};
-use super::status::{state_exit, table};
-use super::watch::{campaign_hooks, Bars};
+use super::status::{state_exit, table, with_loaded};
+use super::watch::Bars;
+use crate::campaign::Campaign;
 use crate::cli::Global;
 use crate::exit::Exit;
-use crate::plan;
 use crate::report;
-use crate::scheduler::SchedulerKind;
+use crate::scheduler::{Scheduler, SchedulerKind};
 use crate::state::{self, interrupt, CampaignState, Context, Selection, Summary, TaskState};
 use std::path::PathBuf;
+use std::sync::atomic::AtomicBool;
 use std::time::Duration;
 
 /// Options of `legwork run`.
@@ -38,30 +39,32 @@ pub struct Args {
 /// Runs `legwork run`.
 pub fn run(args: Args, global: &Global) -> anyhow::Result<()> {
     let stop = interrupt::install();
-    let loaded = super::check::load_or_exit(&args.file, args.root.clone(), false)?;
-    let campaign = loaded.campaign;
-    let plan = plan::expand(&campaign);
-    super::expand::lay_out(&campaign, &plan, false, false, global)?;
+    let loaded = super::watch::load(&args.file, args.root.clone())?;
+    super::expand::lay_out(&loaded.campaign, &loaded.plan, false, false, global)?;
+    let campaign = loaded.campaign.clone();
+    with_loaded(loaded, args.lock_wait, global, |c| {
+        drive(
+            &args,
+            &campaign,
+            c.state,
+            c.sched.as_mut(),
+            &c.ctx,
+            stop,
+            global,
+        )
+    })
+}
 
-    let mut state = CampaignState::open(
-        &campaign.root,
-        plan,
-        Duration::from_secs_f64(args.lock_wait.max(0.0)),
-    )
-    .map_err(state_exit)?;
-    let mut sched = crate::scheduler::build(&campaign.scheduler, &campaign.root, &campaign.name);
-    let hooks = campaign_hooks(campaign.clone());
-    let batch_template = campaign
-        .scheduler
-        .batch_template
-        .as_ref()
-        .map(|t| campaign.templates_dir.join(t));
-    let ctx = Context {
-        campaign: &campaign.name,
-        config: &campaign.scheduler,
-        batch_template,
-        hooks: hooks.as_ref(),
-    };
+/// Watches, resumes while attempts remain, collects and reports.
+fn drive(
+    args: &Args,
+    campaign: &Campaign,
+    state: &mut CampaignState,
+    sched: &mut dyn Scheduler,
+    ctx: &Context,
+    stop: &AtomicBool,
+    global: &Global,
+) -> anyhow::Result<()> {
     let interval = Duration::from_secs_f64(
         args.interval
             .unwrap_or(campaign.scheduler.poll_seconds)
@@ -80,26 +83,19 @@ pub fn run(args: Args, global: &Global) -> anyhow::Result<()> {
 
     let bars = Bars::new(global.quiet);
     let summary = loop {
-        let settled = state::watch_until_settled(
-            &mut state,
-            sched.as_mut(),
-            &ctx,
-            interval,
-            stop,
-            &mut |s| bars.update(s),
-        )
-        .map_err(state_exit)?;
+        let settled =
+            state::watch_until_settled(state, sched, ctx, interval, stop, &mut |s| bars.update(s))
+                .map_err(state_exit)?;
         if settled.interrupted {
             bars.finish();
-            return Err(interrupted(&mut state, sched.as_mut(), kind, &args)?);
+            return Err(interrupted(state, sched, kind, args)?);
         }
         if settled.summary.all_done() || args.no_resume {
             break settled.summary;
         }
-        let r = state::resume(&mut state, sched.as_mut(), &ctx, &Selection::all())
-            .map_err(state_exit)?;
+        let r = state::resume(state, sched, ctx, &Selection::all()).map_err(state_exit)?;
         if r.requeued.is_empty() {
-            break Summary::with_limit(&state, campaign.scheduler.max_attempts);
+            break Summary::with_limit(state, campaign.scheduler.max_attempts);
         }
         tracing::info!(
             "resubmitted {} failed or lost tasks ({} from a checkpoint)",
@@ -112,7 +108,7 @@ pub fn run(args: Args, global: &Global) -> anyhow::Result<()> {
         eprint!("{}", table(&summary, kind, false));
     }
 
-    let (results, counts) = collect_with_state(&campaign, &state, global)?;
+    let (results, counts) = collect_with_state(campaign, state, global)?;
     let written = report::write_all(&campaign.root, &results)?;
     print_outcome(&results, &counts, &written, global)?;
     if summary.all_done() {
@@ -136,7 +132,7 @@ pub fn run(args: Args, global: &Global) -> anyhow::Result<()> {
 /// on a cluster the jobs stay queued.
 fn interrupted(
     state: &mut CampaignState,
-    sched: &mut dyn crate::scheduler::Scheduler,
+    sched: &mut dyn Scheduler,
     kind: SchedulerKind,
     args: &Args,
 ) -> anyhow::Result<anyhow::Error> {

@@ -18,6 +18,9 @@ use std::time::Duration;
 pub struct Args {
     /// The campaign file.
     pub file: PathBuf,
+    /// The campaign's tree is here instead of the file's `root:`.
+    #[arg(long, value_name = "DIR")]
+    pub root: Option<PathBuf>,
     /// Print JSON instead of the table.
     #[arg(long)]
     pub json: bool,
@@ -100,12 +103,22 @@ pub fn state_exit(e: StateError) -> anyhow::Error {
 /// Opens the campaign in `file`, its state and scheduler, and runs `f`.
 pub fn with_campaign<T>(
     file: &Path,
+    root: Option<PathBuf>,
+    lock_wait: f64,
+    global: &Global,
+    f: impl FnOnce(&mut Opened) -> anyhow::Result<T>,
+) -> anyhow::Result<T> {
+    with_loaded(super::watch::load(file, root)?, lock_wait, global, f)
+}
+
+/// Opens the state and scheduler of an already loaded campaign, and runs `f`.
+pub fn with_loaded<T>(
+    loaded: super::watch::Loaded,
     lock_wait: f64,
     global: &Global,
     f: impl FnOnce(&mut Opened) -> anyhow::Result<T>,
 ) -> anyhow::Result<T> {
     let _ = global;
-    let loaded = super::watch::load(file)?;
     let mut state = CampaignState::open(
         &loaded.root,
         loaded.plan.clone(),
@@ -128,7 +141,7 @@ pub fn with_campaign<T>(
 
 /// Runs `legwork status`.
 pub fn run(args: Args, global: &Global) -> anyhow::Result<()> {
-    with_campaign(&args.file, args.lock_wait, global, |c| {
+    with_campaign(&args.file, args.root.clone(), args.lock_wait, global, |c| {
         if args.rescan {
             let n = state::rescan(c.state, c.sched.as_mut(), &c.ctx).map_err(state_exit)?;
             if !args.json && !global.quiet {

@@ -1,4 +1,4 @@
-//! `legwork submit`: lay nothing out, submit every ready task of the campaign to
+//! `legwork submit`: lay out the tree (idempotently), submit every ready task of the campaign to
 //! its scheduler (within `scheduler.max_queued`) and return. With the local
 //! executor, a detached executor process runs the tasks (see
 //! [`crate::scheduler::local`]); `legwork watch` follows them and submits more as
@@ -13,6 +13,9 @@ pub struct Args {
     /// The campaign file.
     #[arg(required_unless_present = "local_executor")]
     pub file: Option<PathBuf>,
+    /// The campaign's tree is here instead of the file's `root:`.
+    #[arg(long, value_name = "DIR")]
+    pub root: Option<PathBuf>,
     /// Seconds to wait for another legwork holding the campaign's lock.
     #[arg(long, default_value_t = 10.0)]
     pub lock_wait: f64,
@@ -39,19 +42,9 @@ pub fn run(args: Args, global: &Global) -> anyhow::Result<()> {
     let file = args.file.expect("clap requires it");
     // The tree first (idempotent: unchanged scripts are left alone, hand-edited
     // ones protected), so `submit` works on a fresh campaign.
-    let loaded = super::check::load_or_exit(&file, None, false)?;
-    let plan = crate::plan::expand(&loaded.campaign);
-    crate::render::write_tree(
-        &loaded.campaign,
-        &plan,
-        &crate::render::RenderOptions {
-            force: false,
-            dry_run: false,
-            progress: false,
-        },
-    )
-    .map_err(|e| crate::exit::Exit::bad_input(format!("error: {e}")))?;
-    super::status::with_campaign(&file, args.lock_wait, global, |c| {
+    let loaded = super::watch::load(&file, args.root.clone())?;
+    super::expand::lay_out(&loaded.campaign, &loaded.plan, false, false, global)?;
+    super::status::with_loaded(loaded, args.lock_wait, global, |c| {
         let s = crate::state::submit_ready(
             c.state,
             c.sched.as_mut(),

@@ -22,6 +22,9 @@ use std::time::Duration;
 pub struct Args {
     /// The campaign file.
     pub file: PathBuf,
+    /// The campaign's tree is here instead of the file's `root:`.
+    #[arg(long, value_name = "DIR")]
+    pub root: Option<PathBuf>,
     /// Poll once, submit what is ready, print the table and exit.
     #[arg(long)]
     pub once: bool,
@@ -47,11 +50,13 @@ pub struct Loaded {
     pub batch_template: Option<PathBuf>,
     /// Output checks and re-rendering.
     pub hooks: Box<dyn TaskHooks>,
+    /// The validated campaign itself.
+    pub campaign: crate::campaign::Campaign,
 }
 
 /// Reads, validates and expands the campaign in `file` (bad input: exit 2).
-pub fn load(file: &Path) -> anyhow::Result<Loaded> {
-    let loaded = super::check::load_or_exit(file, None, false)?;
+pub fn load(file: &Path, root: Option<PathBuf>) -> anyhow::Result<Loaded> {
+    let loaded = super::check::load_or_exit(file, root, false)?;
     let campaign = loaded.campaign;
     let plan = crate::plan::expand(&campaign);
     let batch_template = campaign
@@ -75,7 +80,8 @@ pub fn load(file: &Path) -> anyhow::Result<Loaded> {
         plan,
         config: campaign.scheduler.clone(),
         batch_template,
-        hooks: Box::new(CampaignHooks { campaign }),
+        hooks: campaign_hooks(campaign.clone()),
+        campaign,
     })
 }
 
@@ -124,7 +130,7 @@ impl TaskHooks for CampaignHooks {
 /// Runs `legwork watch`.
 pub fn run(args: Args, global: &Global) -> anyhow::Result<()> {
     let stop = interrupt::install();
-    with_campaign(&args.file, args.lock_wait, global, |c| {
+    with_campaign(&args.file, args.root.clone(), args.lock_wait, global, |c| {
         let kind = c.sched.kind();
         if args.once {
             state::poll(c.state, c.sched.as_mut(), &c.ctx).map_err(state_exit)?;

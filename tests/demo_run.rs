@@ -91,4 +91,59 @@ fn demo_campaign_recovers_the_exact_answers() {
 
     let html = std::fs::read_to_string(root.join("report/index.html")).unwrap();
     assert!(html.contains("<svg"), "the report carries its plots");
+
+    // A second collect reads every window from the parse cache, and agrees.
+    let before = std::fs::read_to_string(root.join("results/edges.csv")).unwrap();
+    let again = Command::cargo_bin("legwork")
+        .unwrap()
+        .current_dir(env!("CARGO_MANIFEST_DIR"))
+        .args(["collect", "campaigns/demo.yaml", "--root"])
+        .arg(&root)
+        .output()
+        .unwrap();
+    let stdout = String::from_utf8_lossy(&again.stdout);
+    assert!(again.status.success(), "collect failed: {stdout}");
+    assert!(
+        stdout.contains("(0 windows parsed, 480 from cache)"),
+        "second collect should parse nothing: {stdout}"
+    );
+    let after = std::fs::read_to_string(root.join("results/edges.csv")).unwrap();
+    assert_eq!(before, after, "cached windows give the same edges");
+
+    partial_campaign_lists_what_is_missing(&root);
+}
+
+/// With one window of one replica unfinished, that leg replica is listed as
+/// missing and its edge rests on the other replica alone.
+fn partial_campaign_lists_what_is_missing(root: &Path) {
+    use legwork::campaign::{self, LoadOptions};
+    let file = Path::new(env!("CARGO_MANIFEST_DIR")).join("campaigns/demo.yaml");
+    let c = campaign::load(
+        &file,
+        &LoadOptions {
+            root_override: Some(root.to_path_buf()),
+        },
+    )
+    .unwrap()
+    .campaign;
+    let plan = legwork::plan::expand(&c);
+    let set = &plan.windows[0];
+    let unfinished = set.tasks[5];
+    let (results, counts) =
+        legwork::collect::gather::collect_campaign(&c, &plan, &|i| i != unfinished, &|_, _| {})
+            .unwrap();
+    assert_eq!(counts.missing, 1);
+    assert_eq!(counts.parsed, 0, "every finished window comes from the cache");
+    let m = &results.missing[0];
+    assert_eq!(
+        (m.subject.as_str(), m.leg.as_str(), m.replica, m.windows_done, m.windows_total),
+        (set.subject.id().as_str(), set.leg.as_str(), set.replica, 11, 12)
+    );
+    let edge = results
+        .edges
+        .iter()
+        .find(|e| e.subject == set.subject.id())
+        .expect("the edge is still estimated from its other replica");
+    let leg = edge.legs.iter().find(|l| l.leg == set.leg).unwrap();
+    assert_eq!(leg.combined.n, 1);
 }

@@ -2,7 +2,7 @@
 """Benchmark of `legwork estimate` against the side-by-side anchors in the shared
 bench directory (numpy MBAR, pandas parsing), measured in one run on the same input.
 
-usage: benches/estimate_bench.py [--runs N] [--states K] [--samples N] [--bench DIR]
+usage: benches/estimate.py [--runs N] [--states K] [--samples N] [--bench DIR]
 
 Builds legwork in release mode, writes K window tables of N samples with the
 anchor's generator, then alternates the commands N times and prints the medians:

@@ -133,11 +133,26 @@ fn partial_campaign_lists_what_is_missing(root: &Path) {
         legwork::collect::gather::collect_campaign(&c, &plan, &|i| i != unfinished, &|_, _| {})
             .unwrap();
     assert_eq!(counts.missing, 1);
-    assert_eq!(counts.parsed, 0, "every finished window comes from the cache");
+    assert_eq!(
+        counts.parsed, 0,
+        "every finished window comes from the cache"
+    );
     let m = &results.missing[0];
     assert_eq!(
-        (m.subject.as_str(), m.leg.as_str(), m.replica, m.windows_done, m.windows_total),
-        (set.subject.id().as_str(), set.leg.as_str(), set.replica, 11, 12)
+        (
+            m.subject.as_str(),
+            m.leg.as_str(),
+            m.replica,
+            m.windows_done,
+            m.windows_total
+        ),
+        (
+            set.subject.id().as_str(),
+            set.leg.as_str(),
+            set.replica,
+            11,
+            12
+        )
     );
     let edge = results
         .edges

@@ -1,4 +1,5 @@
-//! The tera context of a stage template (CONTRACT §3).
+//! The tera context of a stage template (every variable is listed in the README,
+//! "Templates and their variables").
 
 use crate::campaign::quantity::format_walltime;
 use crate::campaign::{Campaign, CampaignKind, Vars};
@@ -43,7 +44,7 @@ pub struct ContextBuilder<'a> {
 }
 
 impl<'a> ContextBuilder<'a> {
-    /// Prepares the shared parts of every context: the full context of CONTRACT §3.
+    /// Prepares the shared parts of every context: the full context the README lists.
     pub fn new(campaign: &'a Campaign, plan: &'a Plan) -> Self {
         Self::build(campaign, plan, true)
     }

@@ -570,3 +570,21 @@ fn edge_csv_errors_carry_the_csv_line() {
     assert!(d.file.ends_with("edges.csv"));
     assert_eq!(d.line, 3, "{err}");
 }
+
+#[test]
+fn a_stage_with_a_missing_template_still_has_its_after_checked() {
+    let yaml = edited("after: [prepare]", "after: [prepair]").replacen(
+        "template: production.sh.tera",
+        "template: prod.sh.tera",
+        1,
+    );
+    let (_dir, err) = load_err(&yaml);
+    let messages: Vec<&str> = err.errors().map(|d| d.message.as_str()).collect();
+    assert!(
+        messages
+            .iter()
+            .any(|m| m.contains("unknown stage 'prepair'")),
+        "{err}"
+    );
+    assert!(messages.iter().any(|m| m.contains("prod.sh.tera")), "{err}");
+}

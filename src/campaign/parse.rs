@@ -1371,6 +1371,7 @@ fn parse_stages(
         return Vec::new();
     };
     let mut stages: Vec<StageAt> = Vec::new();
+    let mut broken: Vec<(String, Vec<(String, Pos)>)> = Vec::new();
     for item in items {
         let Some(f) = ctx.fields(item, "a stage", STAGE_KEYS) else {
             continue;
@@ -1477,6 +1478,7 @@ fn parse_stages(
             v => v,
         });
         let vars = ctx.vars(f.get("vars"), &format!("vars of {what}"));
+        let named = name.clone().map(|n| (n, after.clone()));
         if let (Some(name), Some(per), Some((template, template_path))) = (name, per, template) {
             if let Some((_, p0, _)) = stages.iter().find(|(s, _, _)| s.name == name) {
                 let line = p0.line;
@@ -1501,12 +1503,20 @@ fn parse_stages(
                 f.key_pos("name"),
                 after,
             ));
+        } else if let Some(n) = named {
+            // Reported already (template or `per`); still check its `after` below.
+            broken.push(n);
         }
     }
-    let names: Vec<String> = stages.iter().map(|(s, _, _)| s.name.clone()).collect();
+    let mut names: Vec<String> = stages.iter().map(|(s, _, _)| s.name.clone()).collect();
+    names.extend(broken.iter().map(|(n, _)| n.clone()));
     let cands: Vec<&str> = names.iter().map(String::as_str).collect();
-    let mut ok = true;
-    for (s, _, after) in &stages {
+    let mut ok = broken.is_empty();
+    let edges = stages
+        .iter()
+        .map(|(s, _, after)| (s.name.as_str(), after))
+        .chain(broken.iter().map(|(n, after)| (n.as_str(), after)));
+    for (stage_name, after) in edges {
         for (a, p) in after {
             if !names.contains(a) {
                 let hint = did_you_mean(a, &cands)
@@ -1514,14 +1524,14 @@ fn parse_stages(
                     .unwrap_or_else(|| format!("stages are: {}", cands.join(", ")));
                 ctx.error(
                     *p,
-                    format!("stage '{}' runs after unknown stage '{a}'", s.name),
+                    format!("stage '{stage_name}' runs after unknown stage '{a}'"),
                     Some(hint),
                 );
                 ok = false;
-            } else if *a == s.name {
+            } else if a == stage_name {
                 ctx.error(
                     *p,
-                    format!("stage '{}' runs after itself", s.name),
+                    format!("stage '{stage_name}' runs after itself"),
                     Some("remove it from its own after list".to_string()),
                 );
                 ok = false;

@@ -122,7 +122,7 @@ fn drive(
             summary.total.failed,
             summary.total.lost,
             summary.total.cancelled,
-            file = args.file.display()
+            file = target(args)
         ))
         .into())
     }
@@ -136,7 +136,7 @@ fn interrupted(
     kind: SchedulerKind,
     args: &Args,
 ) -> anyhow::Result<anyhow::Error> {
-    let file = args.file.display();
+    let file = target(args);
     if kind == SchedulerKind::Local {
         let r = state::cancel(
             state,
@@ -158,6 +158,14 @@ fn interrupted(
         "interrupted: the jobs carry on in the queue; `legwork run {file}` (or `legwork watch {file}`) follows them again"
     ))
     .into())
+}
+
+/// The campaign as the user named it, to repeat in hints (with `--root` if given).
+fn target(args: &Args) -> String {
+    match &args.root {
+        Some(r) => format!("{} --root {}", args.file.display(), r.display()),
+        None => args.file.display().to_string(),
+    }
 }
 
 fn kind_name(kind: SchedulerKind) -> &'static str {

@@ -4,38 +4,11 @@ use legwork::network::{solve, Measured, MeasuredKind, NetworkEdge, NetworkError,
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 use serde_json::json;
-use std::io::Write;
-use std::process::{Command, Stdio};
 
 /// Runs a reference script with LEGWORK_PYTHON; `None` (after a loud SKIPPED
 /// line) when it is not set.
-fn python(script: &str, input: serde_json::Value) -> Option<serde_json::Value> {
-    let Ok(py) = std::env::var("LEGWORK_PYTHON") else {
-        // Straight to the stderr handle: the test harness captures eprintln!, and a
-        // skip must be seen.
-        let line = format!(
-            "SKIPPED: {script} reference check needs Python with numpy (set LEGWORK_PYTHON)"
-        );
-        let _ = std::io::stderr().write_all(format!("{line}\n").as_bytes());
-        return None;
-    };
-    let path = format!("{}/tests/python/{script}", env!("CARGO_MANIFEST_DIR"));
-    let mut child = Command::new(py)
-        .arg(&path)
-        .stdin(Stdio::piped())
-        .stdout(Stdio::piped())
-        .spawn()
-        .expect("start python");
-    child
-        .stdin
-        .take()
-        .unwrap()
-        .write_all(input.to_string().as_bytes())
-        .unwrap();
-    let out = child.wait_with_output().unwrap();
-    assert!(out.status.success(), "{script} failed");
-    Some(serde_json::from_slice(&out.stdout).unwrap())
-}
+mod reference_support;
+use reference_support::python;
 
 fn id(i: usize) -> String {
     format!("ork-{:02}", i + 1)

@@ -5,6 +5,7 @@
 use super::status::{state_exit, with_campaign, SelectArgs};
 use crate::cli::Global;
 use crate::exit::Exit;
+use crate::state::Context;
 use std::path::PathBuf;
 
 /// Options of `legwork resume`.
@@ -19,6 +20,10 @@ pub struct Args {
     /// to rerun cancelled ones too).
     #[command(flatten)]
     pub select: SelectArgs,
+    /// Allow this many attempts beyond scheduler.max_attempts, for tasks that
+    /// used them all (after fixing what made them fail).
+    #[arg(long, value_name = "N", default_value_t = 0)]
+    pub extra_attempts: u32,
     /// Seconds to wait for another legwork holding the campaign's lock.
     #[arg(long, default_value_t = 10.0)]
     pub lock_wait: f64,
@@ -28,8 +33,14 @@ pub struct Args {
 pub fn run(args: Args, global: &Global) -> anyhow::Result<()> {
     with_campaign(&args.file, args.root.clone(), args.lock_wait, global, |c| {
         let sel = args.select.selection();
-        let r =
-            crate::state::resume(c.state, c.sched.as_mut(), &c.ctx, &sel).map_err(state_exit)?;
+        let mut config = c.ctx.config.clone();
+        config.max_attempts = config.max_attempts.saturating_add(args.extra_attempts);
+        let ctx = Context {
+            config: &config,
+            batch_template: c.ctx.batch_template.clone(),
+            ..c.ctx
+        };
+        let r = crate::state::resume(c.state, c.sched.as_mut(), &ctx, &sel).map_err(state_exit)?;
         if !global.quiet {
             println!(
                 "resubmitting {} tasks ({} from a checkpoint, {} with a longer walltime); submitted {} tasks in {} jobs",
@@ -49,9 +60,9 @@ pub fn run(args: Args, global: &Global) -> anyhow::Result<()> {
         if !r.exhausted.is_empty() {
             let shown: Vec<&str> = r.exhausted.iter().take(5).map(String::as_str).collect();
             let msg = format!(
-                "{} tasks used all {} attempts (scheduler.max_attempts) and were not resubmitted: {}{}; `legwork status FILE` shows why",
+                "{} tasks used all {} attempts (scheduler.max_attempts) and were not resubmitted: {}{}; `legwork status FILE` shows why; after fixing the cause, `legwork resume FILE --extra-attempts N` allows N more",
                 r.exhausted.len(),
-                c.ctx.config.max_attempts,
+                config.max_attempts,
                 shown.join(", "),
                 if r.exhausted.len() > 5 { ", …" } else { "" }
             );

@@ -212,7 +212,7 @@ pub fn table(s: &Summary, kind: SchedulerKind, all: bool) -> String {
         }
         if !s.exhausted.is_empty() {
             out.push_str(&format!(
-                "{} of them used every attempt (scheduler.max_attempts); fix the cause, raise the limit, or resume them with --state\n",
+                "{} of them used every attempt (scheduler.max_attempts); fix the cause, then `legwork resume FILE --extra-attempts N`\n",
                 s.exhausted.len()
             ));
         } else {

@@ -437,3 +437,68 @@ fn covariance(g: &DMatrix<f64>, counts: &[f64]) -> Vec<f64> {
     let theta = &v * &s * pinv * &s * v.transpose();
     (0..k * k).map(|i| theta[(i / k, i % k)]).collect()
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Both kernels against the definition of the MBAR weights (Shirts & Chodera
+    /// 2008, Eq. 9), p_nk = e^{c_k − u_nk} / Σ_j e^{c_j − u_nj}, with std's exp.
+    #[test]
+    fn kernels_match_the_definition() {
+        for k in [1usize, 3, 4, 7, 30] {
+            let frames = 40;
+            let u: Vec<f64> = (0..frames * k)
+                .map(|i| ((i * 7919) % 1000) as f64 * 0.05)
+                .collect();
+            let rows: Vec<usize> = (0..frames).step_by(3).collect();
+            let kp = k.div_ceil(4) * 4;
+            let mut c: Vec<f64> = (0..k).map(|j| 0.3 * j as f64).collect();
+            c.resize(kp, f64::NEG_INFINITY);
+            let input = ChunkIn {
+                u: &u,
+                rows: &rows,
+                k,
+                kp,
+                c: &c,
+            };
+            let fresh = || Sums {
+                lse: LogSum::new(),
+                colsum: vec![0.0; kp],
+                buf: vec![0.0; rows.len() * kp],
+            };
+            let mut outs = vec![fresh()];
+            weights_scalar(&input, &mut outs[0]);
+            #[cfg(target_arch = "x86_64")]
+            if std::arch::is_x86_feature_detected!("avx2")
+                && std::arch::is_x86_feature_detected!("fma")
+            {
+                let mut o = fresh();
+                // SAFETY: features checked above; input built as `weights` requires.
+                unsafe { crate::estimate::mbar_avx2::weights(&input, &mut o) };
+                outs.push(o);
+            }
+            let mut lse = 0.0;
+            let mut colsum = vec![0.0; k];
+            for (i, &r) in rows.iter().enumerate() {
+                let a: Vec<f64> = (0..k).map(|j| c[j] - u[r * k + j]).collect();
+                let s: f64 = a.iter().map(|x| x.exp()).sum();
+                lse += s.ln();
+                for j in 0..k {
+                    let p = a[j].exp() / s;
+                    colsum[j] += p;
+                    for o in &outs {
+                        assert!((o.buf[i * kp + j] - p).abs() <= 1e-12 * p, "k={k} j={j}");
+                    }
+                }
+            }
+            for o in &mut outs {
+                let got = o.lse.finish();
+                assert!((got - lse).abs() < 1e-12 * lse.abs().max(1.0), "k={k}");
+                for j in 0..k {
+                    assert!((o.colsum[j] - colsum[j]).abs() < 1e-12, "k={k} j={j}");
+                }
+            }
+        }
+    }
+}

@@ -495,8 +495,8 @@ mod tests {
             for o in &mut outs {
                 let got = o.lse.finish();
                 assert!((got - lse).abs() < 1e-12 * lse.abs().max(1.0), "k={k}");
-                for j in 0..k {
-                    assert!((o.colsum[j] - colsum[j]).abs() < 1e-12, "k={k} j={j}");
+                for (j, (got, want)) in o.colsum.iter().zip(&colsum).enumerate() {
+                    assert!((got - want).abs() < 1e-12, "k={k} j={j}");
                 }
             }
         }

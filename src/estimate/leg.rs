@@ -21,23 +21,50 @@ use std::time::Instant;
 /// the two neighbours of the sampled state, u_{k+1} − u_{k−1} (one-sided at the ends;
 /// the sampled reduced potential for a one-state leg).
 pub fn energy_series(w: &WindowSamples) -> Vec<f64> {
+    energy_sweep(w, false).0
+}
+
+/// The energy series and, when asked, the works towards the two neighbouring
+/// states (u_{k−1} − u_k, u_{k+1} − u_k over every frame; empty at the ends), read
+/// in the same sweep over the frames.
+fn energy_sweep(w: &WindowSamples, neighbours: bool) -> (Vec<f64>, [Vec<f64>; 2]) {
     let k = w.state;
-    let (lo, hi) = match (k.checked_sub(1), (k + 1 < w.n_states).then_some(k + 1)) {
+    let below = k.checked_sub(1);
+    let above = (k + 1 < w.n_states).then_some(k + 1);
+    let (lo, hi) = match (below, above) {
         (Some(a), Some(b)) => (a, b),
         (None, Some(b)) => (k, b),
         (Some(a), None) => (a, k),
         (None, None) => (k, k),
     };
-    (0..w.frames)
+    let cap = |side: Option<usize>| {
+        if neighbours && side.is_some() {
+            w.frames
+        } else {
+            0
+        }
+    };
+    let mut down = Vec::with_capacity(cap(below));
+    let mut up = Vec::with_capacity(cap(above));
+    let series = (0..w.frames)
         .map(|n| {
             let r = w.row(n);
+            if neighbours {
+                if let Some(a) = below {
+                    down.push(r[a] - r[k]);
+                }
+                if let Some(b) = above {
+                    up.push(r[b] - r[k]);
+                }
+            }
             if lo == hi {
                 r[k]
             } else {
                 r[hi] - r[lo]
             }
         })
-        .collect()
+        .collect();
+    (series, [down, up])
 }
 
 /// The series for TI: dU/dλ summed over components.
@@ -80,6 +107,9 @@ fn select(
     Ok((eq, rows, residual))
 }
 
+/// A window's equilibration, the frames used and their residual inefficiency.
+type Selection = (Equilibrated, Vec<usize>, f64);
+
 fn label(w: &WindowSamples) -> String {
     format!("window of state {} ({})", w.state, w.source.display())
 }
@@ -110,11 +140,18 @@ pub fn estimate_leg(
     }
     let want_ti = methods.iter().any(|m| m.uses_dudl());
 
-    let energy: Vec<(Equilibrated, Vec<usize>, f64)> = leg
+    // Without BAR, MBAR starts from BAR solved loosely on works gathered while the
+    // energy series is read (one sweep over each window's frames, not two).
+    let need_start = !methods.contains(&Method::Bar);
+    let swept: Vec<(Selection, [Vec<f64>; 2])> = leg
         .windows
         .par_iter()
-        .map(|w| select(&energy_series(w), opts, &label(w)))
-        .collect::<Result<_, _>>()?;
+        .map(|w| {
+            let (series, nb) = energy_sweep(w, need_start);
+            Ok((select(&series, opts, &label(w))?, nb))
+        })
+        .collect::<Result<_, EstimateError>>()?;
+    let (energy, neighbours): (Vec<Selection>, Vec<[Vec<f64>; 2]>) = swept.into_iter().unzip();
     let ti_sel: Option<Vec<(Equilibrated, Vec<usize>, f64)>> = if want_ti {
         Some(
             leg.windows
@@ -222,12 +259,16 @@ pub fn estimate_leg(
         None => (0..k - 1)
             .into_par_iter()
             .map(|i| {
-                let wf = works(&leg.windows[i], used[i], i + 1);
-                let wr = works(&leg.windows[i + 1], used[i + 1], i);
+                let pick = |w: &[f64], rows: &[usize]| -> Vec<f64> {
+                    rows.iter().map(|&n| w[n]).collect()
+                };
+                let wf = pick(&neighbours[i][1], used[i]);
+                let wr = pick(&neighbours[i + 1][0], used[i + 1]);
                 bar_solve(&wf, &wr, 1e-7).unwrap_or(0.0)
             })
             .collect(),
     };
+    drop(neighbours);
     let mut start = vec![0.0];
     for d in steps {
         start.push(start.last().expect("non-empty") + d);

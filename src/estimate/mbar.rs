@@ -99,99 +99,130 @@ pub static PASSES: std::sync::atomic::AtomicUsize = std::sync::atomic::AtomicUsi
 /// the Gram update.
 const CHUNK: usize = 512;
 
-/// Per-thread scratch and sums.
-struct Acc {
-    pass: Pass,
-    buf: Vec<f64>,
-    gram: Option<DMatrix<f64>>,
+/// Σ_n (m_n + ln s_n) with one ln per 8 samples, of the product of their sums
+/// (each s_n lies in [1, K], so the product cannot overflow for any realistic K).
+pub(super) struct LogSum {
+    total: f64,
     prod: f64,
     nprod: usize,
 }
 
-/// One chunk of samples: weights, log-sum-exp, column sums, and (when asked) the
-/// Gram matrix Σ p pᵀ through one matrix product per chunk.
-#[inline(always)]
-fn chunk_body(u: &[f64], rows: &[usize], k: usize, c: &[f64], acc: &mut Acc, gram: bool) {
-    let need = if gram { rows.len() * k } else { k };
-    if acc.buf.len() < need {
-        acc.buf.resize(need, 0.0);
+impl LogSum {
+    fn new() -> Self {
+        LogSum {
+            total: 0.0,
+            prod: 1.0,
+            nprod: 0,
+        }
     }
+    #[inline(always)]
+    pub(super) fn add(&mut self, m: f64, s: f64) {
+        self.total += m;
+        self.prod *= s;
+        self.nprod += 1;
+        if self.nprod == 8 {
+            self.total += self.prod.ln();
+            self.prod = 1.0;
+            self.nprod = 0;
+        }
+    }
+    fn finish(&mut self) -> f64 {
+        self.total += self.prod.ln();
+        self.prod = 1.0;
+        self.nprod = 0;
+        self.total
+    }
+}
+
+/// One chunk of samples: the frames `rows` of `u` (`frames × k`, row-major) and
+/// c_j = f_j + ln N_j, padded to `kp` (K rounded up to a multiple of 4) with −∞.
+pub(super) struct ChunkIn<'a> {
+    pub(super) u: &'a [f64],
+    pub(super) rows: &'a [usize],
+    pub(super) k: usize,
+    pub(super) kp: usize,
+    pub(super) c: &'a [f64],
+}
+
+/// Per-thread sums (`colsum` is `kp` wide) and the weights of the current chunk
+/// (`buf`, row stride `kp`).
+pub(super) struct Sums {
+    pub(super) lse: LogSum,
+    pub(super) colsum: Vec<f64>,
+    pub(super) buf: Vec<f64>,
+}
+
+struct Acc {
+    sums: Sums,
+    gram: Option<DMatrix<f64>>,
+}
+
+/// The weights of one chunk without SIMD.
+fn weights_scalar(input: &ChunkIn, out: &mut Sums) {
+    let ChunkIn { u, rows, k, kp, c } = *input;
     for (i, &r) in rows.iter().enumerate() {
         let urow = &u[r * k..(r + 1) * k];
-        let out = if gram {
-            &mut acc.buf[i * k..(i + 1) * k]
-        } else {
-            &mut acc.buf[..k]
-        };
-        for ((o, cj), uj) in out.iter_mut().zip(c).zip(urow) {
+        let row = &mut out.buf[i * kp..i * kp + k];
+        for ((o, cj), uj) in row.iter_mut().zip(c).zip(urow) {
             *o = cj - uj;
         }
-        let mut mx = [f64::NEG_INFINITY; 4];
-        for (j, v) in out.iter().enumerate() {
-            let slot = &mut mx[j & 3];
-            *slot = if *v > *slot { *v } else { *slot };
-        }
-        let m = mx[0].max(mx[1]).max(mx[2].max(mx[3]));
-        for o in out.iter_mut() {
+        let m = row.iter().fold(f64::NEG_INFINITY, |a, &b| a.max(b));
+        let mut s = 0.0;
+        for o in row.iter_mut() {
             *o = exp_nonpos(*o - m);
+            s += *o;
         }
-        let mut sm = [0.0f64; 4];
-        let mut chunks = out.chunks_exact(4);
-        for q in &mut chunks {
-            for l in 0..4 {
-                sm[l] += q[l];
-            }
-        }
-        let s = (sm[0] + sm[1]) + (sm[2] + sm[3]) + chunks.remainder().iter().sum::<f64>();
-        // ln is taken once per 8 samples, of the product of their sums (each sum lies
-        // in [1, K], so the product cannot overflow for any realistic K).
-        acc.pass.objective += m;
-        acc.prod *= s;
-        acc.nprod += 1;
-        if acc.nprod == 8 {
-            acc.pass.objective += acc.prod.ln();
-            acc.prod = 1.0;
-            acc.nprod = 0;
-        }
+        out.lse.add(m, s);
         let inv = 1.0 / s;
-        for (cs, v) in acc.pass.colsum.iter_mut().zip(out.iter_mut()) {
+        for (cs, v) in out.colsum.iter_mut().zip(row.iter_mut()) {
             *v *= inv;
             *cs += *v;
         }
     }
-    if gram {
-        let r = rows.len();
-        let p = &acc.buf[..r * k];
-        // The chunk's weights read as K × r (column = sample) and as its transpose.
-        let a = nalgebra::DMatrixView::from_slice(p, k, r);
-        let at = nalgebra::DMatrixView::from_slice_with_strides(p, r, k, k, 1);
-        acc.gram
-            .as_mut()
-            .expect("gram pass")
-            .gemm(1.0, &a, &at, 1.0);
+}
+
+/// One chunk of samples: weights, log-sum-exp, column sums, and (when asked) the
+/// Gram matrix Σ p pᵀ through one matrix product per chunk.
+fn chunk(input: &ChunkIn, acc: &mut Acc) {
+    let (k, kp, r) = (input.k, input.kp, input.rows.len());
+    if acc.sums.buf.len() < r * kp {
+        acc.sums.buf.resize(r * kp, 0.0);
     }
-}
-
-#[cfg(target_arch = "x86_64")]
-#[target_feature(enable = "avx2")]
-unsafe fn chunk_avx2(u: &[f64], rows: &[usize], k: usize, c: &[f64], acc: &mut Acc, gram: bool) {
-    chunk_body(u, rows, k, c, acc, gram)
-}
-
-fn chunk(u: &[f64], rows: &[usize], k: usize, c: &[f64], acc: &mut Acc, gram: bool) {
+    let mut done = false;
     #[cfg(target_arch = "x86_64")]
     {
-        if std::arch::is_x86_feature_detected!("avx2") {
-            // SAFETY: the CPU supports AVX2, checked just above.
-            unsafe { chunk_avx2(u, rows, k, c, acc, gram) };
-            return;
+        if std::arch::is_x86_feature_detected!("avx2") && std::arch::is_x86_feature_detected!("fma")
+        {
+            // SAFETY: the CPU supports AVX2 and FMA (checked just above); `pass` builds
+            // the input as `weights` requires (c and colsum kp wide with c[k..] = −∞,
+            // buf resized just above, row indices checked against u).
+            unsafe { super::mbar_avx2::weights(input, &mut acc.sums) };
+            done = true;
         }
     }
-    chunk_body(u, rows, k, c, acc, gram)
+    if !done {
+        weights_scalar(input, &mut acc.sums);
+    }
+    if let Some(g) = acc.gram.as_mut() {
+        let p = &acc.sums.buf[..r * kp];
+        // The chunk's weights read as K × r (column = sample) and as its transpose.
+        let a = nalgebra::DMatrixView::from_slice_with_strides(p, k, r, 1, kp);
+        let at = nalgebra::DMatrixView::from_slice_with_strides(p, r, k, kp, 1);
+        g.gemm(1.0, &a, &at, 1.0);
+    }
 }
 
 fn pass(blocks: &[MbarBlock], k: usize, c: &[f64], gram: bool) -> Pass {
     PASSES.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
+    let kp = k.div_ceil(4) * 4;
+    let mut cpad = c.to_vec();
+    cpad.resize(kp, f64::NEG_INFINITY);
+    for blk in blocks {
+        assert!(
+            blk.rows.iter().all(|&r| (r + 1) * k <= blk.u.len()),
+            "MBAR block rows lie inside its reduced potentials"
+        );
+    }
     let mut work: Vec<(usize, usize, usize)> = Vec::new();
     for (b, blk) in blocks.iter().enumerate() {
         let mut s = 0;
@@ -202,31 +233,34 @@ fn pass(blocks: &[MbarBlock], k: usize, c: &[f64], gram: bool) -> Pass {
         }
     }
     let empty = || Acc {
-        pass: Pass {
-            objective: 0.0,
-            colsum: vec![0.0; k],
-            gram: Vec::new(),
+        sums: Sums {
+            lse: LogSum::new(),
+            colsum: vec![0.0; kp],
+            buf: Vec::new(),
         },
-        buf: Vec::new(),
         gram: gram.then(|| DMatrix::zeros(k, k)),
-        prod: 1.0,
-        nprod: 0,
     };
     let acc = work
         .par_iter()
         .fold(empty, |mut acc, &(b, s, e)| {
             let blk = &blocks[b];
-            chunk(blk.u, &blk.rows[s..e], k, c, &mut acc, gram);
+            let input = ChunkIn {
+                u: blk.u,
+                rows: &blk.rows[s..e],
+                k,
+                kp,
+                c: &cpad,
+            };
+            chunk(&input, &mut acc);
             acc
         })
         .map(|mut a| {
-            a.pass.objective += a.prod.ln();
-            a.prod = 1.0;
+            a.sums.lse.finish();
             a
         })
         .reduce(empty, |mut a, b| {
-            a.pass.objective += b.pass.objective;
-            for (x, y) in a.pass.colsum.iter_mut().zip(&b.pass.colsum) {
+            a.sums.lse.total += b.sums.lse.total;
+            for (x, y) in a.sums.colsum.iter_mut().zip(&b.sums.colsum) {
                 *x += y;
             }
             if let (Some(x), Some(y)) = (a.gram.as_mut(), b.gram.as_ref()) {
@@ -234,11 +268,16 @@ fn pass(blocks: &[MbarBlock], k: usize, c: &[f64], gram: bool) -> Pass {
             }
             a
         });
-    let mut out = acc.pass;
-    if let Some(g) = acc.gram {
-        out.gram = (0..k * k).map(|i| g[(i / k, i % k)]).collect();
+    let mut colsum = acc.sums.colsum;
+    colsum.truncate(k);
+    Pass {
+        objective: acc.sums.lse.total,
+        colsum,
+        gram: acc
+            .gram
+            .map(|g| (0..k * k).map(|i| g[(i / k, i % k)]).collect())
+            .unwrap_or_default(),
     }
-    out
 }
 
 /// Solves the MBAR equations for `k` states from the samples in `blocks`.
@@ -397,4 +436,69 @@ fn covariance(g: &DMatrix<f64>, counts: &[f64]) -> Vec<f64> {
     let pinv = &me.eigenvectors * DMatrix::from_diagonal(&inv_diag) * me.eigenvectors.transpose();
     let theta = &v * &s * pinv * &s * v.transpose();
     (0..k * k).map(|i| theta[(i / k, i % k)]).collect()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Both kernels against the definition of the MBAR weights (Shirts & Chodera
+    /// 2008, Eq. 9), p_nk = e^{c_k − u_nk} / Σ_j e^{c_j − u_nj}, with std's exp.
+    #[test]
+    fn kernels_match_the_definition() {
+        for k in [1usize, 3, 4, 7, 30] {
+            let frames = 40;
+            let u: Vec<f64> = (0..frames * k)
+                .map(|i| ((i * 7919) % 1000) as f64 * 0.05)
+                .collect();
+            let rows: Vec<usize> = (0..frames).step_by(3).collect();
+            let kp = k.div_ceil(4) * 4;
+            let mut c: Vec<f64> = (0..k).map(|j| 0.3 * j as f64).collect();
+            c.resize(kp, f64::NEG_INFINITY);
+            let input = ChunkIn {
+                u: &u,
+                rows: &rows,
+                k,
+                kp,
+                c: &c,
+            };
+            let fresh = || Sums {
+                lse: LogSum::new(),
+                colsum: vec![0.0; kp],
+                buf: vec![0.0; rows.len() * kp],
+            };
+            let mut outs = vec![fresh()];
+            weights_scalar(&input, &mut outs[0]);
+            #[cfg(target_arch = "x86_64")]
+            if std::arch::is_x86_feature_detected!("avx2")
+                && std::arch::is_x86_feature_detected!("fma")
+            {
+                let mut o = fresh();
+                // SAFETY: features checked above; input built as `weights` requires.
+                unsafe { crate::estimate::mbar_avx2::weights(&input, &mut o) };
+                outs.push(o);
+            }
+            let mut lse = 0.0;
+            let mut colsum = vec![0.0; k];
+            for (i, &r) in rows.iter().enumerate() {
+                let a: Vec<f64> = (0..k).map(|j| c[j] - u[r * k + j]).collect();
+                let s: f64 = a.iter().map(|x| x.exp()).sum();
+                lse += s.ln();
+                for j in 0..k {
+                    let p = a[j].exp() / s;
+                    colsum[j] += p;
+                    for o in &outs {
+                        assert!((o.buf[i * kp + j] - p).abs() <= 1e-12 * p, "k={k} j={j}");
+                    }
+                }
+            }
+            for o in &mut outs {
+                let got = o.lse.finish();
+                assert!((got - lse).abs() < 1e-12 * lse.abs().max(1.0), "k={k}");
+                for (j, (got, want)) in o.colsum.iter().zip(&colsum).enumerate() {
+                    assert!((got - want).abs() < 1e-12, "k={k} j={j}");
+                }
+            }
+        }
+    }
 }

@@ -8,6 +8,8 @@ pub mod exp;
 mod fastexp;
 mod leg;
 pub mod mbar;
+#[cfg(target_arch = "x86_64")]
+mod mbar_avx2;
 pub mod options;
 mod result;
 pub mod ti;

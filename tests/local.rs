@@ -224,6 +224,24 @@ echo ok > out.txt
     }
 }
 
+/// Polls `cond` every 50 ms; fails the test with `what` after 20 s.
+fn wait_until(what: &str, cond: impl Fn() -> bool) {
+    let t = std::time::Instant::now();
+    while !cond() {
+        assert!(t.elapsed() < Duration::from_secs(20), "{what}");
+        std::thread::sleep(Duration::from_millis(50));
+    }
+}
+
+/// The process id a task or the executor wrote to `path`.
+fn read_pid(path: impl AsRef<std::path::Path>) -> i32 {
+    std::fs::read_to_string(path)
+        .unwrap()
+        .trim()
+        .parse()
+        .unwrap()
+}
+
 fn pid_alive(pid: i32) -> bool {
     unsafe { libc::kill(pid, 0) == 0 }
 }
@@ -247,30 +265,12 @@ fn cancel_stops_running_tasks_and_keeps_planned_ones_back() {
     let mut sched = scheduler::build(&cfg, root, "t");
     state::submit_ready(&mut st, sched.as_mut(), &ctx, &Selection::all()).unwrap();
     let pidfile = root.join(&plan.tasks[0].dir).join("task.pid");
-    let t = std::time::Instant::now();
-    while !pidfile.exists() {
-        assert!(
-            t.elapsed() < Duration::from_secs(20),
-            "prepare never started"
-        );
-        std::thread::sleep(Duration::from_millis(50));
-    }
-    let pid: i32 = std::fs::read_to_string(&pidfile)
-        .unwrap()
-        .trim()
-        .parse()
-        .unwrap();
+    wait_until("prepare never started", || pidfile.exists());
+    let pid: i32 = read_pid(&pidfile);
     let c = state::cancel(&mut st, sched.as_mut(), &Selection::all(), "test").unwrap();
     // The windows were queued behind their prepare, so all three were live.
     assert_eq!((c.live, c.planned), (3, 0));
-    let t = std::time::Instant::now();
-    while pid_alive(pid) {
-        assert!(
-            t.elapsed() < Duration::from_secs(20),
-            "the cancelled task still runs"
-        );
-        std::thread::sleep(Duration::from_millis(50));
-    }
+    wait_until("the cancelled task still runs", || !pid_alive(pid));
     let s = st.summary();
     assert_eq!(s.total.cancelled, 3);
     // Nothing more is submitted, and resume leaves cancelled tasks alone by default.
@@ -303,33 +303,15 @@ echo ok > out.txt
     let mut sched = scheduler::build(&cfg, root, "t");
     state::submit_ready(&mut st, sched.as_mut(), &ctx, &Selection::all()).unwrap();
     let pidfile = root.join(&plan.tasks[0].dir).join("task.pid");
-    let t = std::time::Instant::now();
-    while !pidfile.exists() {
-        assert!(
-            t.elapsed() < Duration::from_secs(20),
-            "prepare never started"
-        );
-        std::thread::sleep(Duration::from_millis(50));
-    }
-    let task_pid: i32 = std::fs::read_to_string(&pidfile)
-        .unwrap()
-        .trim()
-        .parse()
-        .unwrap();
+    wait_until("prepare never started", || pidfile.exists());
+    let task_pid: i32 = read_pid(&pidfile);
     let exec: i32 = std::fs::read_to_string(root.join(".legwork/local/executor.ready"))
         .unwrap()
         .trim()
         .parse()
         .unwrap();
     unsafe { libc::kill(exec, libc::SIGKILL) };
-    let t = std::time::Instant::now();
-    while pid_alive(task_pid) {
-        assert!(
-            t.elapsed() < Duration::from_secs(20),
-            "the task outlived its executor"
-        );
-        std::thread::sleep(Duration::from_millis(50));
-    }
+    wait_until("the task outlived its executor", || !pid_alive(task_pid));
     let s = settle(&mut st, sched.as_mut(), &ctx);
     assert_eq!(s.total.failed + s.total.lost, 1, "{s:?}");
     assert_eq!(s.total.planned, 2, "{s:?}");

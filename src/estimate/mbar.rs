@@ -92,6 +92,12 @@ struct Pass {
     gram: Vec<f64>,
 }
 
+/// A Newton step below this in every reduced free energy is taken to be the last:
+/// the covariance and overlap at the point before it differ from those at the
+/// solution by about this much relative, far below the precision of an error bar
+/// (whose own statistical uncertainty is of order 1/√N).
+const FINAL_STEP: f64 = 1e-5;
+
 /// Passes over the samples made by this process (diagnostics and benchmarks).
 pub static PASSES: std::sync::atomic::AtomicUsize = std::sync::atomic::AtomicUsize::new(0);
 
@@ -316,10 +322,15 @@ pub fn solve(
         |p: &Pass| -> Vec<f64> { p.colsum.iter().zip(&counts).map(|(a, b)| a - b).collect() };
     let gnorm = |g: &[f64]| g.iter().fold(0.0f64, |m, v| m.max(v.abs())) / n_total;
 
-    // The Gram matrix costs one small matrix product per chunk of samples, so every
-    // pass computes it: each step is a full Newton step, and the pass that shows
-    // convergence also gives the covariance and overlap.
+    // Every step is a full Newton step, so the pass at each new point computes the
+    // Gram matrix (one small matrix product per chunk of samples) for the next
+    // step. The exception is a step below FINAL_STEP in every f: its pass is
+    // expected to show convergence, so it skips the Gram matrix, and the covariance
+    // and overlap come from the pass before it. When that pass does not converge
+    // after all, the Gram matrix is computed at that point before the next step.
     let mut cur = pass(blocks, k, &shift(&f), true);
+    // The pass with a Gram matrix that `cur` replaced when `cur` has none.
+    let mut gram_pass: Option<Pass> = None;
     let mut g = grad_of(&cur);
     let mut iterations = 0;
     let mut last_norm = gnorm(&g);
@@ -331,9 +342,14 @@ pub fn solve(
             )));
         }
         iterations += 1;
+        if cur.gram.is_empty() {
+            cur = pass(blocks, k, &shift(&f), true);
+            gram_pass = None;
+        }
         let chol = reduced_hessian(&cur, k)?;
         let rhs = DVector::from_iterator(k - 1, g[1..].iter().map(|v| -v));
         let step = chol.solve(&rhs);
+        let last_step = step.amax() <= FINAL_STEP;
         let mut t = 1.0;
         let mut accepted = None;
         for _ in 0..40 {
@@ -341,7 +357,7 @@ pub fn solve(
             for j in 1..k {
                 trial[j] += t * step[j - 1];
             }
-            let p = pass(blocks, k, &shift(&trial), true);
+            let p = pass(blocks, k, &shift(&trial), !last_step);
             let gt = grad_of(&p);
             let slack = 1e-12 * cur.objective.abs().max(1.0);
             if p.objective <= cur.objective + slack || gnorm(&gt) < last_norm {
@@ -364,11 +380,18 @@ pub fn solve(
             break;
         }
         f = trial;
-        cur = p;
+        let replaced = std::mem::replace(&mut cur, p);
+        if cur.gram.is_empty() {
+            gram_pass = Some(replaced);
+        }
         g = gt;
         last_norm = norm;
     }
-    let fin = cur;
+    let fin = if cur.gram.is_empty() {
+        gram_pass.expect("a pass without the Gram matrix follows one with it")
+    } else {
+        cur
+    };
     let gram = full_gram(&fin.gram, k);
     // W_nk = p_nk / N_k, so G = Wᵀ W = N⁻¹ (Σ p pᵀ) N⁻¹.
     let gmat = DMatrix::from_fn(k, k, |a, b| gram[a * k + b] / (counts[a] * counts[b]));
@@ -441,6 +464,63 @@ fn covariance(g: &DMatrix<f64>, counts: &[f64]) -> Vec<f64> {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// The covariance and overlap reported after a last step that skipped the Gram
+    /// matrix agree with those evaluated at the solution itself (the definition,
+    /// Shirts & Chodera 2008, Eq. D6, at the final free energies).
+    #[test]
+    fn covariance_after_the_last_step_is_the_one_at_the_solution() {
+        let k = 6;
+        let frames = 4000;
+        let mut state = 0x853c_49e6_748f_ea9bu64;
+        let mut unif = || {
+            state ^= state << 13;
+            state ^= state >> 7;
+            state ^= state << 17;
+            ((state >> 11) as f64 + 0.5) / (1u64 << 53) as f64
+        };
+        // Harmonic states u_j(x) = κ_j (x − μ_j)² / 2, sampled exactly.
+        let kappa: Vec<f64> = (0..k).map(|j| 1.0 + 0.4 * j as f64).collect();
+        let mu: Vec<f64> = (0..k).map(|j| 0.3 * j as f64).collect();
+        let mut u = Vec::new();
+        for s in 0..k {
+            let mut w = Vec::with_capacity(frames * k);
+            for _ in 0..frames {
+                let z = (-2.0 * unif().ln()).sqrt() * (std::f64::consts::TAU * unif()).cos();
+                let x = mu[s] + z / kappa[s].sqrt();
+                w.extend((0..k).map(|j| 0.5 * kappa[j] * (x - mu[j]).powi(2)));
+            }
+            u.push(w);
+        }
+        let rows: Vec<usize> = (0..frames).collect();
+        let blocks: Vec<MbarBlock> = (0..k)
+            .map(|s| MbarBlock {
+                state: s,
+                u: &u[s],
+                rows: &rows,
+            })
+            .collect();
+        let sol = solve(&blocks, k, &MbarSettings::default()).unwrap();
+        let counts = vec![frames as f64; k];
+        let c: Vec<f64> = sol.f.iter().map(|f| f + (frames as f64).ln()).collect();
+        let at = pass(&blocks, k, &c, true);
+        let gram = full_gram(&at.gram, k);
+        let gmat = DMatrix::from_fn(k, k, |a, b| gram[a * k + b] / (counts[a] * counts[b]));
+        let want = covariance(&gmat, &counts);
+        for (got, want) in sol.covariance.iter().zip(&want) {
+            assert!(
+                (got - want).abs() <= 1e-4 * want.abs().max(1e-6),
+                "{got} vs {want}"
+            );
+        }
+        let (_, sigma) = sol.difference(0, k - 1);
+        let var = want[0] + want[k * k - 1] - 2.0 * want[k - 1];
+        assert!((sigma / var.sqrt() - 1.0).abs() < 1e-4);
+        for (i, o) in sol.overlap.iter().enumerate() {
+            let exact = gmat[(i / k, i % k)] * counts[i % k];
+            assert!((o - exact).abs() < 1e-4 * exact.max(1e-6));
+        }
+    }
 
     /// Both kernels against the definition of the MBAR weights (Shirts & Chodera
     /// 2008, Eq. 9), p_nk = e^{c_k − u_nk} / Σ_j e^{c_j − u_nj}, with std's exp.

@@ -154,6 +154,13 @@ const POW10: [f64; 23] = [
 /// operation); everything else goes to `fast-float2`.
 #[inline(always)]
 fn parse_number(s: &[u8]) -> Option<(f64, usize)> {
+    parse_number_as::<false>(s)
+}
+
+/// [`parse_number`]; with `FINITE`, non-finite values (which only the slow path
+/// can produce) come back as `None`, so no branch waits on the division.
+#[inline(always)]
+fn parse_number_as<const FINITE: bool>(s: &[u8]) -> Option<(f64, usize)> {
     let n = s.len();
     let mut i = 0;
     let neg = match s.first() {
@@ -185,7 +192,7 @@ fn parse_number(s: &[u8]) -> Option<(f64, usize)> {
         }
     }
     if digits == 0 || digits > 19 {
-        return slow(s);
+        return slow::<FINITE>(s);
     }
     if i < n && (s[i] == b'e' || s[i] == b'E') {
         let mut j = i + 1;
@@ -207,13 +214,13 @@ fn parse_number(s: &[u8]) -> Option<(f64, usize)> {
             j += 1;
         }
         if j == first || (j < n && s[j].is_ascii_digit()) {
-            return slow(s);
+            return slow::<FINITE>(s);
         }
         exp10 += if eneg { -e } else { e };
         i = j;
     }
     if mant > (1u64 << 53) || !(-22..=22).contains(&exp10) {
-        return slow(s);
+        return slow::<FINITE>(s);
     }
     let m = mant as f64;
     let v = if exp10 < 0 {
@@ -225,8 +232,10 @@ fn parse_number(s: &[u8]) -> Option<(f64, usize)> {
 }
 
 #[cold]
-fn slow(s: &[u8]) -> Option<(f64, usize)> {
-    fast_float2::parse_partial::<f64, _>(s).ok()
+fn slow<const FINITE: bool>(s: &[u8]) -> Option<(f64, usize)> {
+    fast_float2::parse_partial::<f64, _>(s)
+        .ok()
+        .filter(|(v, _)| !FINITE || v.is_finite())
 }
 
 /// The common case of a single-byte delimiter and no stray spaces, with as few
@@ -245,15 +254,15 @@ fn quick_line(line: &[u8], d: u8, spec: &RowSpec, row: &mut [f64], drow: &mut [f
                     p += 1;
                 }
             }
-            Slot::Energy(j) => match parse_number(&line[p..]) {
-                Some((v, used)) if v.is_finite() => {
+            Slot::Energy(j) => match parse_number_as::<true>(&line[p..]) {
+                Some((v, used)) => {
                     row[j] = v * spec.scale;
                     p += used;
                 }
                 _ => return false,
             },
-            Slot::Dudl(c) => match parse_number(&line[p..]) {
-                Some((v, used)) if v.is_finite() => {
+            Slot::Dudl(c) => match parse_number_as::<true>(&line[p..]) {
+                Some((v, used)) => {
                     drow[c] = v * spec.scale;
                     p += used;
                 }

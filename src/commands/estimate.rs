@@ -119,6 +119,9 @@ pub fn run(args: Args, _global: &Global) -> anyhow::Result<()> {
     } else {
         print!("{}", table(&est, args.unit));
     }
+    // The samples (as much memory as the energies) are left to the operating system,
+    // which takes them back at exit in one go rather than one unmapping per window.
+    std::mem::forget(leg);
     Ok(())
 }
 

@@ -53,6 +53,22 @@ pub struct SchedulerConfig {
     /// Engine `-tc`; 0: no limit).
     #[serde(default)]
     pub array_throttle: usize,
+    /// Seconds to wait for the exit marker of a task the scheduler no longer
+    /// lists (or lists as completed) before calling it lost: on a shared
+    /// filesystem a file written on the compute node can take a while to show on
+    /// the login node. Default 0 for the local executor, 120 for the others.
+    #[serde(default)]
+    pub marker_grace_seconds: Option<u64>,
+}
+
+impl SchedulerConfig {
+    /// The wait for a late exit marker, in seconds.
+    pub fn marker_grace_s(&self) -> u64 {
+        self.marker_grace_seconds.unwrap_or(match self.kind {
+            SchedulerKind::Local => 0,
+            _ => 120,
+        })
+    }
 }
 
 impl Default for SchedulerConfig {
@@ -67,6 +83,7 @@ impl Default for SchedulerConfig {
             options: Default::default(),
             walltime_factor: default_walltime_factor(),
             array_throttle: 0,
+            marker_grace_seconds: None,
         }
     }
 }

@@ -58,6 +58,16 @@ pub enum Event {
         #[serde(default, skip_serializing_if = "Option::is_none")]
         walltime_s: Option<u64>,
     },
+    /// A live task's element left the queue without an exit marker; legwork waits
+    /// for the marker until `since` plus the scheduler's marker grace.
+    AwaitingMarker {
+        /// Task id.
+        task: String,
+        /// Attempt it refers to.
+        attempt: u32,
+        /// When it was first seen gone (UTC, RFC 3339).
+        since: String,
+    },
 }
 
 /// A journal line: when, and what.

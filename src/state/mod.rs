@@ -64,6 +64,7 @@ impl StateData {
                     r.submission = Some(*sub);
                     r.reason = None;
                     r.kind = None;
+                    r.awaiting_marker_since = None;
                 }
                 self.submissions.insert(
                     *sub,
@@ -110,8 +111,20 @@ impl StateData {
                 r.attempt = *attempt;
                 r.reason = reason.clone();
                 r.kind = *kind;
+                r.awaiting_marker_since = None;
                 if walltime_s.is_some() {
                     r.walltime_s = *walltime_s;
+                }
+            }
+            Event::AwaitingMarker {
+                task,
+                attempt,
+                since,
+            } => {
+                if let Some(r) = self.tasks.get_mut(task) {
+                    if r.attempt == *attempt && r.state.is_live() {
+                        r.awaiting_marker_since = Some(since.clone());
+                    }
                 }
             }
         }

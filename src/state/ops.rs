@@ -3,7 +3,7 @@
 //! interrupted submission first, so a task is never submitted twice.
 
 use super::record::{FailureKind, SubmissionStatus, SubmittedTask, TaskState};
-use super::tracker::{classify, Verdict};
+use super::tracker::{self, classify, Verdict};
 use super::{markers, CampaignState, Context, Event, StateError, Summary};
 use crate::plan::{BatchDep, TaskIndex};
 use crate::scheduler::{self, script, Dependency, Element, Scheduler, Submission};
@@ -31,6 +31,8 @@ pub struct PollSummary {
     pub ended: usize,
     /// Tasks put back in the plan because a task they wait for failed.
     pub blocked: usize,
+    /// Tasks gone from the queue whose exit marker legwork is still waiting for.
+    pub awaiting_marker: usize,
 }
 
 /// What [`resume`] did.
@@ -341,6 +343,8 @@ pub fn poll(
     }
     let jobs: Vec<String> = jobs.into_iter().collect();
     let result = sched.query(&jobs)?;
+    let grace = ctx.config.marker_grace_s();
+    let now = chrono::Utc::now();
     let mut to_cancel = Vec::new();
     for (ti, element, attempt) in live {
         let task = &state.plan.tasks[ti];
@@ -349,11 +353,43 @@ pub fn poll(
         let walltime = r.walltime_s.unwrap_or(0).max(task.resources.walltime_s);
         let status = element.as_ref().and_then(|e| result.elements.get(e));
         let plan = &state.plan;
-        let verdict = classify(status, &dir, attempt, walltime, &|| {
+        let mut verdict = classify(status, &dir, attempt, walltime, &|| {
             ctx.hooks.check_output(plan, ti, &dir)
         });
         let id = task.id.clone();
         let old = r.state;
+        if let Verdict::Ended(_, reason, _) = &mut verdict {
+            if grace > 0 && tracker::marker_may_be_late(status, &dir, attempt) {
+                let waited = r
+                    .awaiting_marker_since
+                    .as_deref()
+                    .and_then(|t| chrono::DateTime::parse_from_rfc3339(t).ok())
+                    .map(|t| (now - t.with_timezone(&chrono::Utc)).num_seconds().max(0) as u64);
+                match waited {
+                    Some(w) if w >= grace => {
+                        if let Some(why) = reason.as_mut() {
+                            why.push_str(&format!(" (waited {w} s for it)"));
+                        }
+                    }
+                    Some(_) => {
+                        summary.awaiting_marker += 1;
+                        continue;
+                    }
+                    None => {
+                        summary.awaiting_marker += 1;
+                        tracing::info!(
+                            "{id}: left the queue without an exit marker; waiting up to {grace} s for it (scheduler.marker_grace_seconds)"
+                        );
+                        state.record_event(Event::AwaitingMarker {
+                            task: id,
+                            attempt,
+                            since: now.to_rfc3339(),
+                        });
+                        continue;
+                    }
+                }
+            }
+        }
         match verdict {
             Verdict::Live(s) => {
                 if s != old {

@@ -128,6 +128,10 @@ pub struct TaskRecord {
     /// Walltime of the next attempt when raised after a walltime kill (seconds).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub walltime_s: Option<u64>,
+    /// When the current attempt's element was first seen gone from the queue with
+    /// no exit marker (UTC, RFC 3339); cleared by the next state change.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub awaiting_marker_since: Option<String>,
 }
 
 /// Where a submission stands.

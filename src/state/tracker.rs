@@ -168,3 +168,11 @@ pub(crate) fn classify(
         }
     }
 }
+
+/// Whether an ended verdict rests only on a missing exit marker that may still
+/// arrive: the scheduler no longer lists the element, or lists it as completed,
+/// and the attempt has no exit marker yet.
+pub(crate) fn marker_may_be_late(status: Option<&JobStatus>, dir: &Path, attempt: u32) -> bool {
+    matches!(status.map(|s| &s.state), None | Some(QueueState::Completed))
+        && markers::exited(dir, attempt).is_none()
+}

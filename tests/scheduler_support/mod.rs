@@ -110,13 +110,16 @@ pub fn use_built_legwork() {
     std::env::set_var("LEGWORK_EXE", env!("CARGO_BIN_EXE_legwork"));
 }
 
-/// A scheduler that keeps every submitted element pending and counts the
-/// queries it answers (scale test and status benchmark).
+/// A scheduler that keeps every submitted element pending (or, with `gone`, has
+/// forgotten them all) and counts the queries it answers.
 pub struct Stub {
     next: u64,
     jobs: Vec<(String, Vec<usize>)>,
     /// `query` calls so far.
     pub queries: std::rc::Rc<std::cell::Cell<u64>>,
+    /// When set, the stub has forgotten every job (as a scheduler does once its
+    /// elements have ended and left the queue).
+    pub gone: bool,
 }
 
 // The counter is only read on the test's own thread.
@@ -131,6 +134,7 @@ impl Stub {
                 next: 1,
                 jobs: Vec::new(),
                 queries: q.clone(),
+                gone: false,
             },
             q,
         )
@@ -166,6 +170,9 @@ impl legwork::scheduler::Scheduler for Stub {
         self.queries.set(self.queries.get() + 1);
         let wanted: std::collections::HashSet<&str> = jobs.iter().map(String::as_str).collect();
         let mut r = legwork::scheduler::QueryResult::default();
+        if self.gone {
+            return Ok(r);
+        }
         for (id, idx) in &self.jobs {
             if wanted.contains(id.as_str()) {
                 for i in idx {

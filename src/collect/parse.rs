@@ -96,6 +96,8 @@ pub(crate) fn parse_rows(
     let mut warnings = Vec::new();
     let mut row = vec![0.0f64; k];
     let mut drow = vec![0.0f64; c];
+    let codes = field_codes(spec);
+    let mut both = vec![0.0f64; k + c];
     let mut pos = start;
     let mut line_no = first_line;
     let mut frames = 0usize;
@@ -119,14 +121,17 @@ pub(crate) fn parse_rows(
                 break;
             }
             let quick = match spec.delim {
-                Delim::Byte(d) => quick_line(line, d, spec, &mut row, &mut drow),
+                Delim::Byte(d) => quick_line(line, d, &codes, spec.scale, &mut both),
                 Delim::Whitespace => false,
             };
-            if !quick {
+            if quick {
+                reduced.extend_from_slice(&both[..k]);
+                dudl.extend_from_slice(&both[k..]);
+            } else {
                 parse_line(path, line, line_no, spec, nf, &mut row, &mut drow)?;
+                reduced.extend_from_slice(&row);
+                dudl.extend_from_slice(&drow);
             }
-            reduced.extend_from_slice(&row);
-            dudl.extend_from_slice(&drow);
             frames += 1;
         }
         pos = end + 1;
@@ -238,36 +243,44 @@ fn slow<const FINITE: bool>(s: &[u8]) -> Option<(f64, usize)> {
         .filter(|(v, _)| !FINITE || v.is_finite())
 }
 
+/// Where each field of the quick path goes: an index into one combined row
+/// (energies, then dU/dλ components), or [`SKIP`].
+fn field_codes(spec: &RowSpec) -> Vec<u32> {
+    spec.slots
+        .iter()
+        .map(|s| match *s {
+            Slot::Skip => SKIP,
+            Slot::Energy(j) => j as u32,
+            Slot::Dudl(c) => (spec.n_states + c) as u32,
+        })
+        .collect()
+}
+
+const SKIP: u32 = u32::MAX;
+
 /// The common case of a single-byte delimiter and no stray spaces, with as few
-/// branches as possible. Returns false on anything unusual (spaces, a bad or
-/// non-finite value, a wrong field count): the careful parser then reads the line
-/// again and reports exactly what is wrong.
+/// branches as possible: each value goes to `out[codes[field]]` (energies, then
+/// dU/dλ). Returns false on anything unusual (spaces, a bad or non-finite value,
+/// a wrong field count): the careful parser then reads the line again and
+/// reports exactly what is wrong.
 #[inline(always)]
-fn quick_line(line: &[u8], d: u8, spec: &RowSpec, row: &mut [f64], drow: &mut [f64]) -> bool {
+fn quick_line(line: &[u8], d: u8, codes: &[u32], scale: f64, out: &mut [f64]) -> bool {
     let n = line.len();
     let mut p = 0usize;
-    let last = spec.slots.len() - 1;
-    for (f, slot) in spec.slots.iter().enumerate() {
-        match *slot {
-            Slot::Skip => {
-                while p < n && line[p] != d {
-                    p += 1;
-                }
+    let last = codes.len() - 1;
+    for (f, &code) in codes.iter().enumerate() {
+        if code == SKIP {
+            while p < n && line[p] != d {
+                p += 1;
             }
-            Slot::Energy(j) => match parse_number_as::<true>(&line[p..]) {
+        } else {
+            match parse_number_as::<true>(&line[p..]) {
                 Some((v, used)) => {
-                    row[j] = v * spec.scale;
+                    out[code as usize] = v * scale;
                     p += used;
                 }
-                _ => return false,
-            },
-            Slot::Dudl(c) => match parse_number_as::<true>(&line[p..]) {
-                Some((v, used)) => {
-                    drow[c] = v * spec.scale;
-                    p += used;
-                }
-                _ => return false,
-            },
+                None => return false,
+            }
         }
         if f < last {
             if p < n && line[p] == d {

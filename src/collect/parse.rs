@@ -180,21 +180,24 @@ fn parse_number_as<const FINITE: bool>(s: &[u8]) -> Option<(f64, usize)> {
         _ => false,
     };
     let mut mant: u64 = 0;
-    let mut digits = 0u32;
-    let mut exp10: i64 = 0;
-    while i < n && s[i].is_ascii_digit() {
-        mant = mant.wrapping_mul(10).wrapping_add((s[i] - b'0') as u64);
-        digits += 1;
+    let first = i;
+    // Digit counts come from positions after each loop: the loops do only the
+    // arithmetic.
+    while let Some(&c) = s.get(i).filter(|c| c.is_ascii_digit()) {
+        mant = mant.wrapping_mul(10).wrapping_add((c - b'0') as u64);
         i += 1;
     }
+    let mut digits = (i - first) as u32;
+    let mut exp10: i64 = 0;
     if i < n && s[i] == b'.' {
         i += 1;
-        while i < n && s[i].is_ascii_digit() {
-            mant = mant.wrapping_mul(10).wrapping_add((s[i] - b'0') as u64);
-            digits += 1;
-            exp10 -= 1;
+        let frac = i;
+        while let Some(&c) = s.get(i).filter(|c| c.is_ascii_digit()) {
+            mant = mant.wrapping_mul(10).wrapping_add((c - b'0') as u64);
             i += 1;
         }
+        digits += (i - frac) as u32;
+        exp10 = -((i - frac) as i64);
     }
     if digits == 0 || digits > 19 {
         return slow::<FINITE>(s);

@@ -395,6 +395,32 @@ fn undefined_variable_names_task_and_template_and_writes_nothing() {
 }
 
 #[test]
+fn check_finds_a_template_error_that_only_the_last_window_reaches() {
+    // The first task of every stage renders; only window 2 reaches the typo.
+    let (dir, _) = basic();
+    let path = dir.path().join("templates/production.sh.tera");
+    let text = std::fs::read_to_string(&path).unwrap();
+    std::fs::write(
+        &path,
+        format!("{text}{{% if window.index == 2 %}}echo {{{{ vars.no_such_window_thing }}}}{{% endif %}}\n"),
+    )
+    .unwrap();
+    let out = Command::cargo_bin("legwork")
+        .unwrap()
+        .arg("check")
+        .arg(dir.path().join("campaign.yaml"))
+        .assert()
+        .code(2)
+        .get_output()
+        .clone();
+    let stderr = String::from_utf8_lossy(&out.stderr);
+    assert!(
+        stderr.contains("/w02/production: template") && stderr.contains("no_such_window_thing"),
+        "{stderr}"
+    );
+}
+
+#[test]
 fn paths_cannot_escape_the_root() {
     let root = Path::new("/tmp/some-root");
     assert!(render::confined(root, Path::new("a~b/leg/r1/prepare/task.sh")).is_ok());

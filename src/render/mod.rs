@@ -671,19 +671,20 @@ pub fn write_tree(
     }
 }
 
-/// Renders (without writing) the first task of every stage × leg, so that `check`
-/// finds an undefined variable before `expand` does.
+/// Renders (without writing) every task's script, in parallel, so that `check`
+/// finds an undefined variable or a failing filter before `expand` does, also one
+/// that only some windows or replicas reach; the first failure in plan order is
+/// reported.
 pub fn probe(campaign: &Campaign, plan: &Plan) -> Result<(), RenderError> {
     let tera = templates::load_tera(campaign).map_err(RenderError::Templates)?;
     let builder = ContextBuilder::for_rendering(campaign, plan);
-    let mut seen = std::collections::HashSet::new();
-    for b in &plan.batches {
-        let Some(&t) = b.tasks.first() else { continue };
-        if seen.insert((b.stage.as_str(), plan.tasks[t].leg.as_str())) {
-            render_one(&tera, &builder, campaign, plan, t, 1, false)?;
-        }
+    match (0..plan.tasks.len())
+        .into_par_iter()
+        .find_map_first(|t| render_one(&tera, &builder, campaign, plan, t, 1, false).err())
+    {
+        Some(e) => Err(e),
+        None => Ok(()),
     }
-    Ok(())
 }
 
 /// Re-renders the `task.sh` of several tasks for a resubmission (attempt,

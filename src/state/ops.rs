@@ -368,7 +368,7 @@ pub fn poll(
                 match waited {
                     Some(w) if w >= grace => {
                         if let Some(why) = reason.as_mut() {
-                            why.push_str(&format!(" (waited {w} s for it)"));
+                            why.push_str(&format!("; waited {w} s for it"));
                         }
                     }
                     Some(_) => {

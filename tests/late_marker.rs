@@ -60,6 +60,16 @@ fn a_task_gone_from_the_queue_waits_for_its_marker_before_it_is_lost() {
     assert!(states(&st).iter().all(|s| s.is_live()), "{:?}", states(&st));
     let p = state::poll(&mut st, &mut stub, &ctx).unwrap();
     assert_eq!((p.awaiting_marker, p.ended), (n, 0));
+    // `status` says so rather than leaving them as plain "running".
+    let summary = st.summary();
+    assert_eq!(summary.awaiting_marker.len(), n);
+    let shown = legwork::commands::status::table(&summary, SchedulerKind::Slurm, false);
+    assert!(
+        shown.contains(&format!(
+            "{n} tasks left the queue without an exit marker yet"
+        )),
+        "{shown}"
+    );
 
     // The first task's marker shows up within the grace: it is done.
     let first = st.plan().tasks[0].clone();
@@ -76,6 +86,7 @@ fn a_task_gone_from_the_queue_waits_for_its_marker_before_it_is_lost() {
     std::thread::sleep(Duration::from_millis(2100));
     let p = state::poll(&mut st, &mut stub, &ctx).unwrap();
     assert_eq!((p.awaiting_marker, p.ended), (0, n - 1));
+    assert!(st.summary().awaiting_marker.is_empty());
     for i in 1..n {
         let r = st.record(i);
         assert_eq!(r.state, TaskState::Lost, "task {i}");

@@ -219,6 +219,15 @@ pub fn table(s: &Summary, kind: SchedulerKind, all: bool) -> String {
             out.push_str("run `legwork resume FILE` to resubmit them\n");
         }
     }
+    if !s.awaiting_marker.is_empty() {
+        out.push_str(&format!(
+            "\n{} task{} left the queue without an exit marker yet ({}{}); legwork waits scheduler.marker_grace_seconds for a marker slowed by the shared filesystem before calling them lost\n",
+            s.awaiting_marker.len(),
+            if s.awaiting_marker.len() == 1 { "" } else { "s" },
+            s.awaiting_marker.iter().take(3).cloned().collect::<Vec<_>>().join(", "),
+            if s.awaiting_marker.len() > 3 { ", …" } else { "" }
+        ));
+    }
     if s.all_done() {
         out.push_str("every task is done\n");
     } else if s.total.live() > 0 && kind == SchedulerKind::Local {

@@ -84,6 +84,8 @@ pub struct Summary {
     pub reasons: Vec<ReasonGroup>,
     /// Tasks that failed and have no attempt left.
     pub exhausted: Vec<String>,
+    /// Live tasks gone from the queue whose exit marker legwork is waiting for.
+    pub awaiting_marker: Vec<String>,
 }
 
 impl Summary {
@@ -107,6 +109,9 @@ impl Summary {
                 order.push(key.clone());
             }
             groups.entry(key).or_default().add(st);
+            if r.is_some_and(|r| st.is_live() && r.awaiting_marker_since.is_some()) {
+                s.awaiting_marker.push(t.id.clone());
+            }
             if matches!(st, TaskState::Failed | TaskState::Lost) {
                 let r = r.expect("failed tasks have records");
                 let kind = r.kind.map(|k| k.label()).unwrap_or("unknown").to_string();

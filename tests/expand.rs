@@ -56,6 +56,20 @@ fn write(c: &Campaign, force: bool) -> render::TreeReport {
     .unwrap()
 }
 
+/// Runs `legwork VERB <dir>/campaign.yaml`, expects exit 2 (bad input), and
+/// returns its standard error.
+fn refused(verb: &str, dir: &Path) -> String {
+    let out = Command::cargo_bin("legwork")
+        .unwrap()
+        .arg(verb)
+        .arg(dir.join("campaign.yaml"))
+        .assert()
+        .code(2)
+        .get_output()
+        .clone();
+    String::from_utf8_lossy(&out.stderr).into_owned()
+}
+
 #[test]
 fn plan_of_the_basic_campaign() {
     let (_d, c) = basic();
@@ -379,15 +393,7 @@ fn undefined_variable_names_task_and_template_and_writes_nothing() {
         other => panic!("{other}"),
     }
     assert!(!c.root.exists(), "nothing written");
-    let out = Command::cargo_bin("legwork")
-        .unwrap()
-        .arg("check")
-        .arg(dir.path().join("campaign.yaml"))
-        .assert()
-        .code(2)
-        .get_output()
-        .clone();
-    let stderr = String::from_utf8_lossy(&out.stderr);
+    let stderr = refused("check", dir.path());
     assert!(
         stderr.contains("/prepare: template") && stderr.contains("no_such_thing"),
         "check finds it too: {stderr}"
@@ -405,15 +411,7 @@ fn check_finds_a_template_error_that_only_the_last_window_reaches() {
         format!("{text}{{% if window.index == 2 %}}echo {{{{ vars.no_such_window_thing }}}}{{% endif %}}\n"),
     )
     .unwrap();
-    let out = Command::cargo_bin("legwork")
-        .unwrap()
-        .arg("check")
-        .arg(dir.path().join("campaign.yaml"))
-        .assert()
-        .code(2)
-        .get_output()
-        .clone();
-    let stderr = String::from_utf8_lossy(&out.stderr);
+    let stderr = refused("check", dir.path());
     assert!(
         stderr.contains("/w02/production: template") && stderr.contains("no_such_window_thing"),
         "{stderr}"
@@ -474,15 +472,7 @@ fn ids_that_would_escape_or_inject_are_rejected_by_check() {
             format!("id\nlig-1\nlig-2\nlig-3\n{bad}\n"),
         )
         .unwrap();
-        let out = Command::cargo_bin("legwork")
-            .unwrap()
-            .arg("expand")
-            .arg(dir.path().join("campaign.yaml"))
-            .assert()
-            .code(2)
-            .get_output()
-            .clone();
-        let stderr = String::from_utf8_lossy(&out.stderr);
+        let stderr = refused("expand", dir.path());
         assert!(
             stderr.contains("ligands.csv:5:1: error: ligand id") && stderr.contains(why),
             "{bad}: {stderr}"

@@ -8,8 +8,8 @@
 #[path = "../tests/scheduler_support/mod.rs"]
 mod scheduler_support;
 
-use legwork::state::{self, CampaignState, Context, ExitCodeOnly, Selection};
-use scheduler_support::{plan, Stub};
+use legwork::state::{self, CampaignState, Selection};
+use scheduler_support::{exit_code_context, plan, Stub};
 use std::time::{Duration, Instant};
 
 fn median(mut v: Vec<f64>) -> f64 {
@@ -26,12 +26,7 @@ fn main() {
         max_queued: 0,
         ..Default::default()
     };
-    let ctx = Context {
-        campaign: "bench",
-        config: &cfg,
-        batch_template: None,
-        hooks: &ExitCodeOnly,
-    };
+    let ctx = exit_code_context(&cfg);
     let (mut stub, queries) = Stub::new();
     let t = Instant::now();
     let mut st = CampaignState::open(root, p.clone(), Duration::ZERO).unwrap();

@@ -6,10 +6,9 @@
 mod scheduler_support;
 
 use legwork::state::{
-    self, CampaignState, Context, Event, ExitCodeOnly, Journal, JournalError, StateError,
-    SubmittedTask, TaskState,
+    self, CampaignState, Event, Journal, JournalError, StateError, SubmittedTask, TaskState,
 };
-use scheduler_support::{plan, Stub};
+use scheduler_support::{exit_code_context, plan, Stub};
 use std::io::Write;
 use std::time::Duration;
 
@@ -172,12 +171,7 @@ fn rescan_rebuilds_done_and_failed_from_the_markers() {
     let root = d.path();
     let p = plan(1, 2, 60);
     let cfg = legwork::scheduler::SchedulerConfig::default();
-    let ctx = Context {
-        campaign: "t",
-        config: &cfg,
-        batch_template: None,
-        hooks: &ExitCodeOnly,
-    };
+    let ctx = exit_code_context(&cfg);
     // Exit markers as the wrapper writes them: prepare and w00 exited 0, w01 exited 7.
     for (t, code) in p.tasks.iter().zip([0, 0, 7]) {
         let dir = root.join(&t.dir);

@@ -8,8 +8,8 @@
 mod scheduler_support;
 
 use legwork::scheduler::{SchedulerConfig, SchedulerKind};
-use legwork::state::{self, CampaignState, Context, ExitCodeOnly, Selection, TaskState};
-use scheduler_support::{plan, Stub};
+use legwork::state::{self, CampaignState, Selection, TaskState};
+use scheduler_support::{exit_code_context, plan, Stub};
 use std::path::Path;
 use std::time::Duration;
 
@@ -31,6 +31,17 @@ fn states(st: &CampaignState) -> Vec<TaskState> {
         .collect()
 }
 
+/// A fresh campaign of `plan(1, 2, 60)` in `dir`, every task submitted to a stub
+/// that has then forgotten them all (none has an exit marker).
+fn submitted_then_gone(dir: &Path, ctx: &legwork::state::Context) -> (CampaignState, Stub) {
+    let mut st = CampaignState::open(dir, plan(1, 2, 60), Duration::ZERO).unwrap();
+    let (mut stub, _) = Stub::new();
+    state::submit_ready(&mut st, &mut stub, ctx, &Selection::all()).unwrap();
+    assert!(states(&st).iter().all(|s| *s == TaskState::Queued));
+    stub.gone = true;
+    (st, stub)
+}
+
 #[test]
 fn a_task_gone_from_the_queue_waits_for_its_marker_before_it_is_lost() {
     let d = tempfile::tempdir().unwrap();
@@ -39,21 +50,10 @@ fn a_task_gone_from_the_queue_waits_for_its_marker_before_it_is_lost() {
         marker_grace_seconds: Some(2),
         ..Default::default()
     };
-    let ctx = Context {
-        campaign: "t",
-        config: &cfg,
-        batch_template: None,
-        hooks: &ExitCodeOnly,
-    };
-    let the_plan = plan(1, 2, 60);
-    let n = the_plan.tasks.len();
-    let mut st = CampaignState::open(d.path(), the_plan.clone(), Duration::ZERO).unwrap();
-    let (mut stub, _) = Stub::new();
-    state::submit_ready(&mut st, &mut stub, &ctx, &Selection::all()).unwrap();
-    assert!(states(&st).iter().all(|s| *s == TaskState::Queued));
-
+    let ctx = exit_code_context(&cfg);
     // Every element leaves the queue; none has an exit marker yet.
-    stub.gone = true;
+    let (mut st, mut stub) = submitted_then_gone(d.path(), &ctx);
+    let n = st.plan().tasks.len();
     let p = state::poll(&mut st, &mut stub, &ctx).unwrap();
     assert_eq!(p.awaiting_marker, n);
     assert_eq!(p.ended, 0);
@@ -81,7 +81,7 @@ fn a_task_gone_from_the_queue_waits_for_its_marker_before_it_is_lost() {
 
     // The wait is journalled: a fresh process picks it up where it was.
     drop(st);
-    let mut st = CampaignState::open(d.path(), the_plan, Duration::ZERO).unwrap();
+    let mut st = CampaignState::open(d.path(), plan(1, 2, 60), Duration::ZERO).unwrap();
     assert!(st.record(1).awaiting_marker_since.is_some());
     std::thread::sleep(Duration::from_millis(2100));
     let p = state::poll(&mut st, &mut stub, &ctx).unwrap();
@@ -109,18 +109,9 @@ fn without_a_grace_the_verdict_is_immediate() {
         ..Default::default()
     };
     assert!(slurm.marker_grace_s() > 0);
-    let ctx = Context {
-        campaign: "t",
-        config: &cfg,
-        batch_template: None,
-        hooks: &ExitCodeOnly,
-    };
-    let the_plan = plan(1, 2, 60);
-    let n = the_plan.tasks.len();
-    let mut st = CampaignState::open(d.path(), the_plan, Duration::ZERO).unwrap();
-    let (mut stub, _) = Stub::new();
-    state::submit_ready(&mut st, &mut stub, &ctx, &Selection::all()).unwrap();
-    stub.gone = true;
+    let ctx = exit_code_context(&cfg);
+    let (mut st, mut stub) = submitted_then_gone(d.path(), &ctx);
+    let n = st.plan().tasks.len();
     let p = state::poll(&mut st, &mut stub, &ctx).unwrap();
     assert_eq!((p.awaiting_marker, p.ended), (0, n));
     assert!(states(&st).iter().all(|s| *s == TaskState::Lost));

@@ -5,20 +5,15 @@
 
 mod scheduler_support;
 
-use legwork::state::{self, CampaignState, Context, ExitCodeOnly, Selection, TaskState};
-use scheduler_support::{plan, Stub};
+use legwork::state::{self, CampaignState, Selection, TaskState};
+use scheduler_support::{exit_code_context, plan, Stub};
 use std::time::Duration;
 
 #[test]
 fn a_cancelled_task_still_in_the_queue_is_not_resubmitted() {
     let d = tempfile::tempdir().unwrap();
     let cfg = legwork::scheduler::SchedulerConfig::default();
-    let ctx = Context {
-        campaign: "t",
-        config: &cfg,
-        batch_template: None,
-        hooks: &ExitCodeOnly,
-    };
+    let ctx = exit_code_context(&cfg);
     let mut st = CampaignState::open(d.path(), plan(1, 2, 60), Duration::ZERO).unwrap();
     let (mut stub, _) = Stub::new();
     state::submit_ready(&mut st, &mut stub, &ctx, &Selection::all()).unwrap();

@@ -5,8 +5,8 @@
 mod scheduler_support;
 
 use legwork::scheduler::{self, SchedulerConfig, SchedulerKind};
-use legwork::state::{self, CampaignState, Context, ExitCodeOnly, Selection};
-use scheduler_support::{plan, Stub};
+use legwork::state::{self, CampaignState, Selection};
+use scheduler_support::{exit_code_context, plan, Stub};
 use std::path::Path;
 use std::time::Duration;
 
@@ -20,12 +20,7 @@ fn queries_per_poll(edges: usize, windows: usize) -> (usize, u64) {
     };
     let mut st = CampaignState::open(d.path(), p, Duration::ZERO).unwrap();
     let (mut stub, queries) = Stub::new();
-    let ctx = Context {
-        campaign: "t",
-        config: &cfg,
-        batch_template: None,
-        hooks: &ExitCodeOnly,
-    };
+    let ctx = exit_code_context(&cfg);
     let s = state::submit_ready(&mut st, &mut stub, &ctx, &Selection::all()).unwrap();
     assert_eq!(
         s.tasks, n,
@@ -82,12 +77,7 @@ fn slurm_commands_per_poll(edges: usize) -> Vec<String> {
     };
     let mut st = CampaignState::open(&root, p, Duration::ZERO).unwrap();
     let mut sched = scheduler::build(&cfg, &root, "t");
-    let ctx = Context {
-        campaign: "t",
-        config: &cfg,
-        batch_template: None,
-        hooks: &ExitCodeOnly,
-    };
+    let ctx = exit_code_context(&cfg);
     state::submit_ready(&mut st, sched.as_mut(), &ctx, &Selection::all()).unwrap();
     std::fs::remove_file(fake.join("calls")).unwrap();
     state::poll(&mut st, sched.as_mut(), &ctx).unwrap();

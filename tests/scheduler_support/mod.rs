@@ -4,7 +4,7 @@
 #![allow(dead_code)]
 
 use legwork::plan::{Batch, BatchDep, Plan, Resources, Subject, Task};
-use legwork::state::TaskHooks;
+use legwork::state::{Context, ExitCodeOnly, TaskHooks};
 use std::path::{Path, PathBuf};
 
 /// A plan with `subjects` edges `e{k}a~e{k}b`, one leg `complex`, one replica,
@@ -258,4 +258,15 @@ pub fn rendered_submission(
         "the rendered batch script is not valid bash:\n{text}"
     );
     (sub, text)
+}
+
+/// The context of the state-level tests: no campaign file, the built-in batch
+/// template, success judged by the exit code alone.
+pub fn exit_code_context(config: &legwork::scheduler::SchedulerConfig) -> Context<'_> {
+    Context {
+        campaign: "t",
+        config,
+        batch_template: None,
+        hooks: &ExitCodeOnly,
+    }
 }

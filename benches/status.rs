@@ -5,7 +5,7 @@
 //!
 //! Run: `cargo bench --bench status`.
 
-#[path = "../tests/scheduler_support/mod.rs"]
+#[path = "../tests/it/scheduler_support/mod.rs"]
 mod scheduler_support;
 
 use legwork::state::{self, CampaignState, Selection};

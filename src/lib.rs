@@ -2,8 +2,9 @@
 //! campaign file in; a tree of task scripts, scheduler jobs, tracked state, leg
 //! free energies, edge ΔΔG and a reconciled network out.
 //!
-//! The numeric core ([`estimate`], [`cycle`], [`network`], [`units`]) does no I/O and
-//! can be used as a library on its own.
+//! The numeric core ([`estimate`], [`cycle`], [`network`], [`units`]) is its own
+//! crate, `legwork-numerics` (folder `numerics/`): it does no I/O and can be used as
+//! a library alone. It is re-exported here under the same names.
 
 #![warn(missing_docs)]
 
@@ -11,15 +12,13 @@ pub mod campaign;
 pub mod cli;
 pub mod collect;
 pub mod commands;
-pub mod cycle;
 pub mod demo;
-pub mod estimate;
 pub mod exit;
 pub mod logging;
-pub mod network;
 pub mod plan;
 pub mod render;
 pub mod report;
 pub mod scheduler;
 pub mod state;
-pub mod units;
+
+pub use legwork_numerics::{cycle, estimate, network, units};

@@ -50,6 +50,6 @@ mod tests {
         assert!(unsafe_reason("a;rm").is_some());
         assert!(unsafe_reason("$(x)").is_some());
         assert!(unsafe_reason("a b").unwrap().contains("space"));
-        assert!(unsafe_reason("a~b").is_some());
+        assert!(unsafe_reason("a+b").is_some());
     }
 }

@@ -56,9 +56,9 @@ pub struct Edge {
 }
 
 impl Edge {
-    /// `a~b`.
+    /// `a+b`.
     pub fn id(&self) -> String {
-        format!("{}~{}", self.a, self.b)
+        format!("{}+{}", self.a, self.b)
     }
 }
 

@@ -903,7 +903,7 @@ fn parse_edges(
         if a == b {
             target.error(
                 pa,
-                format!("edge {a}~{b} joins a ligand to itself"),
+                format!("edge {a}+{b} joins a ligand to itself"),
                 Some("an edge needs two different ligands".to_string()),
             );
             ok = false;
@@ -914,7 +914,7 @@ fn parse_edges(
         if let Some(line) = seen.get(&(a.clone(), b.clone())) {
             target.error(
                 pa,
-                format!("duplicate edge {a}~{b} (first on line {line})"),
+                format!("duplicate edge {a}+{b} (first on line {line})"),
                 Some("remove the repeated edge".to_string()),
             );
             continue;
@@ -922,7 +922,7 @@ fn parse_edges(
         if let Some(line) = seen.get(&(b.clone(), a.clone())) {
             target.warn(
                 pa,
-                format!("edge {a}~{b} is the reverse of {b}~{a} (line {line}): both will be run"),
+                format!("edge {a}+{b} is the reverse of {b}+{a} (line {line}): both will be run"),
                 Some(
                     "remove one unless you want the transformation run in both directions"
                         .to_string(),

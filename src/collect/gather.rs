@@ -5,8 +5,8 @@
 use super::cache::{ParseCache, Source};
 use super::{assemble, ReadError, WindowSamples};
 use crate::campaign::Campaign;
+use crate::collect::experiment::{read_measured, ExperimentError};
 use crate::estimate::{estimate_leg, EstimateError, EstimateOptions};
-use crate::network::experiment::{read_measured, ExperimentError};
 use crate::plan::{Plan, TaskIndex, WindowSet};
 use crate::report::{self, CampaignInfo, LegReplica, MissingWork, Results};
 use rayon::prelude::*;

@@ -5,16 +5,16 @@ pub mod cache;
 mod columns;
 pub mod config;
 mod error;
+pub mod experiment;
 pub mod gather;
 mod meta;
 mod parse;
-mod samples;
 mod window_table;
 
 pub use config::ReaderConfig;
 pub use error::ReadError;
+pub use legwork_numerics::samples::{LegSamples, WindowSamples};
 pub use meta::WindowHint;
-pub use samples::{LegSamples, WindowSamples};
 
 use config::ReaderFormat;
 use rayon::prelude::*;

@@ -3,7 +3,7 @@
 use super::error::ReadError;
 use super::meta::{read_preamble, WindowHint};
 use super::parse::{parse_rows, split_header, Delim, RowSpec, Slot};
-use super::samples::WindowSamples;
+use super::WindowSamples;
 use crate::units::EnergyUnit;
 use std::path::Path;
 

@@ -39,8 +39,8 @@ pub struct Args {
 /// tasks must match every option given.
 #[derive(Debug, Clone, Default, clap::Args)]
 pub struct SelectArgs {
-    /// Only these edges (`a~b`).
-    #[arg(long = "edge", value_delimiter = ',', value_name = "A~B")]
+    /// Only these edges (`a+b`).
+    #[arg(long = "edge", value_delimiter = ',', value_name = "A+B")]
     pub edges: Vec<String>,
     /// Only these ligands (absolute or solvation campaigns).
     #[arg(long = "ligand", value_delimiter = ',', value_name = "ID")]
@@ -60,7 +60,7 @@ pub struct SelectArgs {
     /// Only tasks in these states (planned, queued, running, done, failed, lost, cancelled).
     #[arg(long = "state", value_delimiter = ',', value_name = "STATE")]
     pub states: Vec<TaskState>,
-    /// Only tasks whose id starts with this (e.g. `ork-01~ork-02/complex/r1/`).
+    /// Only tasks whose id starts with this (e.g. `ork-01+ork-02/complex/r1/`).
     #[arg(long = "task", value_name = "ID")]
     pub tasks: Vec<String>,
 }

@@ -17,33 +17,7 @@ pub type TaskIndex = usize;
 /// Index of a batch in [`Plan::batches`].
 pub type BatchIndex = usize;
 
-/// What a task's leg belongs to: an edge of a relative campaign, or one ligand of
-/// an absolute or solvation campaign.
-#[derive(Debug, Clone, PartialEq, Eq, Hash, PartialOrd, Ord, Serialize, Deserialize)]
-pub enum Subject {
-    /// A relative transformation from ligand `a` to ligand `b`.
-    Edge {
-        /// first ligand id (λ = 0)
-        a: String,
-        /// second ligand id (λ = 1)
-        b: String,
-    },
-    /// A single ligand (absolute binding or solvation).
-    Ligand {
-        /// ligand id
-        id: String,
-    },
-}
-
-impl Subject {
-    /// The id used in task ids and paths: `a~b` for an edge, the ligand id otherwise.
-    pub fn id(&self) -> String {
-        match self {
-            Subject::Edge { a, b } => format!("{a}~{b}"),
-            Subject::Ligand { id } => id.clone(),
-        }
-    }
-}
+pub use legwork_numerics::cycle::Subject;
 
 /// What one task asks of the scheduler.
 #[derive(Debug, Clone, PartialEq, Eq, Hash, Serialize, Deserialize)]
@@ -62,8 +36,8 @@ pub struct Resources {
 /// of one replica of one leg of one subject.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct Task {
-    /// Stable id, e.g. `lig-a~lig-b/complex/r1/w07/production` or
-    /// `lig-a~lig-b/complex/r1/prepare` for a per-leg stage.
+    /// Stable id, e.g. `lig-a+lig-b/complex/r1/w07/production` or
+    /// `lig-a+lig-b/complex/r1/prepare` for a per-leg stage.
     pub id: String,
     /// The edge or ligand.
     pub subject: Subject,
@@ -104,7 +78,7 @@ pub enum BatchDep {
 /// one subject. The array index of a task is its position in `tasks`.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct Batch {
-    /// Stable id, e.g. `lig-a~lig-b/complex/r1/production`.
+    /// Stable id, e.g. `lig-a+lig-b/complex/r1/production`.
     pub id: String,
     /// Stage name.
     pub stage: String,

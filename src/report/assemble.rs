@@ -1,9 +1,10 @@
 //! From finished leg replicas to a full [`Results`]: cycles, network, statistics.
 
 use super::results::{LegReplica, MissingWork, Results, RESULTS_SCHEMA};
+use crate::collect::experiment::IC50_NOTE;
 use crate::cycle::{combine_edge, CampaignKind, CycleError, LegSpec, LegValue};
 use crate::network::stats::compare_all;
-use crate::network::{annotate_edges, experiment::IC50_NOTE, solve, LigandEstimate, Measured};
+use crate::network::{annotate_edges, solve, LigandEstimate, Measured};
 use crate::network::{NetworkEdge, NetworkError};
 use crate::plan::Subject;
 use crate::units::EnergyUnit;
@@ -42,8 +43,8 @@ pub enum AssembleError {
     /// The network could not be solved.
     #[error(transparent)]
     Network(#[from] NetworkError),
-    /// A relative campaign's subject id is not `a~b`.
-    #[error("subject '{0}' of a relative campaign is not of the form ligand_a~ligand_b")]
+    /// A relative campaign's subject id is not `a+b`.
+    #[error("subject '{0}' of a relative campaign is not of the form ligand_a+ligand_b")]
     Subject(String),
 }
 
@@ -68,7 +69,7 @@ pub fn assemble(
         let subject = match info.kind {
             CampaignKind::Relative => {
                 let (a, b) = s
-                    .split_once('~')
+                    .split_once('+')
                     .ok_or_else(|| AssembleError::Subject(s.to_string()))?;
                 Subject::Edge {
                     a: a.to_string(),

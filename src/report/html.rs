@@ -3,7 +3,7 @@
 
 use super::plots::{self, PlotError};
 use super::results::{LegReplica, Results};
-use crate::network::experiment::IC50_NOTE;
+use crate::collect::experiment::IC50_NOTE;
 use crate::network::stats::{Interval, Stats};
 use crate::network::Offset;
 use std::fmt::Write;

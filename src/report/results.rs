@@ -121,7 +121,7 @@ pub struct Convergence {
 /// One finished leg replica.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct LegReplica {
-    /// Subject id (`a~b` or a ligand id).
+    /// Subject id (`a+b` or a ligand id).
     pub subject: String,
     /// Leg name.
     pub leg: String,

@@ -59,6 +59,10 @@ pub struct SchedulerConfig {
     /// the login node. Default 0 for the local executor, 120 for the others.
     #[serde(default)]
     pub marker_grace_seconds: Option<u64>,
+    /// The folder holding the scheduler's commands (`sbatch`, `squeue`, …), for a
+    /// site with several installations; default: found on `PATH`.
+    #[serde(default)]
+    pub commands_dir: Option<std::path::PathBuf>,
 }
 
 impl SchedulerConfig {
@@ -84,6 +88,7 @@ impl Default for SchedulerConfig {
             walltime_factor: default_walltime_factor(),
             array_throttle: 0,
             marker_grace_seconds: None,
+            commands_dir: None,
         }
     }
 }

@@ -166,7 +166,10 @@ pub trait Scheduler: Send {
 /// local executor keeps its queue under `<root>/.legwork/local/`); `campaign` its
 /// name (Grid Engine's accounting is searched by job-name pattern).
 pub fn build(config: &SchedulerConfig, root: &Path, campaign: &str) -> Box<dyn Scheduler> {
-    let runner = runner::Runner::default();
+    let runner = runner::Runner {
+        program_dir: config.commands_dir.clone(),
+        ..runner::Runner::default()
+    };
     match config.kind {
         SchedulerKind::Local => Box::new(local::Local::new(root, config)),
         SchedulerKind::Slurm => Box::new(slurm::Slurm::new(runner)),
@@ -196,7 +199,7 @@ pub fn job_name(campaign: &str, batch_id: &str, submission: u64) -> String {
         use sha2::Digest;
         let h = sha2::Sha256::digest(body.as_bytes());
         let hex: String = h.iter().take(6).map(|b| format!("{b:02x}")).collect();
-        body = format!("{}~{hex}", &body[..160]);
+        body = format!("{}+{hex}", &body[..160]);
     }
     format!("lw.{body}.s{submission}")
 }
@@ -222,7 +225,7 @@ mod tests {
 
     #[test]
     fn job_names_are_safe_and_carry_the_submission() {
-        let n = job_name("orrin demo", "ork-01~ork-02/complex/r1/production", 17);
+        let n = job_name("orrin demo", "ork-01+ork-02/complex/r1/production", 17);
         assert_eq!(n, "lw.orrin-demo.ork-01-ork-02.complex.r1.production.s17");
         assert_eq!(submission_of_name(&n), Some(17));
         let long = job_name("c", &"x".repeat(400), 3);

@@ -61,6 +61,8 @@ pub struct Runner {
     pub attempts: u32,
     /// Delay before the second attempt; doubled each time.
     pub backoff: Duration,
+    /// Where the programs are (`scheduler.commands_dir`); `None`: on `PATH`.
+    pub program_dir: Option<std::path::PathBuf>,
 }
 
 impl Default for Runner {
@@ -69,6 +71,7 @@ impl Default for Runner {
             timeout: Duration::from_secs(60),
             attempts: 4,
             backoff: Duration::from_millis(500),
+            program_dir: None,
         }
     }
 }
@@ -190,7 +193,10 @@ impl Runner {
         stdin: Option<&std::path::Path>,
         line: &str,
     ) -> Result<Output, RunError> {
-        let mut cmd = Command::new(program);
+        let mut cmd = match &self.program_dir {
+            Some(dir) => Command::new(dir.join(program)),
+            None => Command::new(program),
+        };
         cmd.args(args).stdout(Stdio::piped()).stderr(Stdio::piped());
         // A command in flight dies with legwork rather than finishing behind the
         // back of the next legwork (which reconciles by job name instead).
@@ -291,6 +297,7 @@ mod tests {
             timeout: Duration::from_secs(5),
             attempts: 3,
             backoff: Duration::from_millis(1),
+            program_dir: None,
         };
         let err = r
             .run("sh", &["-c".into(), "echo nope >&2; exit 3".into()])
@@ -318,6 +325,7 @@ mod tests {
             timeout: Duration::from_secs(5),
             attempts: 4,
             backoff: Duration::from_millis(1),
+            program_dir: None,
         };
         let out = r.run("sh", &["-c".into(), script]).unwrap();
         assert_eq!(out.stdout.trim(), "ok");
@@ -330,6 +338,7 @@ mod tests {
             timeout: Duration::from_millis(200),
             attempts: 2,
             backoff: Duration::from_millis(1),
+            program_dir: None,
         };
         let err = r.run("sleep", &["5".into()]).unwrap_err();
         assert!(

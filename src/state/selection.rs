@@ -8,7 +8,7 @@ use crate::plan::Task;
 /// must match.
 #[derive(Debug, Clone, Default, PartialEq, Eq)]
 pub struct Selection {
-    /// Subject ids (`a~b` for an edge, a ligand id).
+    /// Subject ids (`a+b` for an edge, a ligand id).
     pub subjects: Vec<String>,
     /// Leg names.
     pub legs: Vec<String>,
@@ -20,7 +20,7 @@ pub struct Selection {
     pub stages: Vec<String>,
     /// States.
     pub states: Vec<TaskState>,
-    /// Task ids or id prefixes (`ork-01~ork-02/complex/`).
+    /// Task ids or id prefixes (`ork-01+ork-02/complex/`).
     pub tasks: Vec<String>,
 }
 

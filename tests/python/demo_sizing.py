@@ -54,4 +54,4 @@ def leg(a, b, env, seed):
 for a, b, ddg in exact:
     errs = np.array([np.mean([leg(a, b, "complex", 10 * s + r) - leg(a, b, "solvent", 10 * s + r) for r in range(2)]) - ddg
                      for s in range(seeds)])
-    print(f"{a}~{b} exact {ddg:+.3f}  mean error {errs.mean():+.3f}  sd {errs.std(ddof=1):.3f}  max |error| {abs(errs).max():.3f}", flush=True)
+    print(f"{a}+{b} exact {ddg:+.3f}  mean error {errs.mean():+.3f}  sd {errs.std(ddof=1):.3f}  max |error| {abs(errs).max():.3f}", flush=True)

@@ -6,7 +6,14 @@ use clap::{Parser, Subcommand};
 
 /// Runs alchemical free-energy campaigns on batch clusters.
 #[derive(Debug, Parser)]
-#[command(name = "legwork", version, about, long_about = None, propagate_version = true)]
+#[command(
+    name = "legwork",
+    version,
+    about,
+    long_about = None,
+    propagate_version = true,
+    disable_help_subcommand = true
+)]
 pub struct Cli {
     /// Options every verb takes.
     #[command(flatten)]
@@ -56,6 +63,10 @@ pub enum Command {
     Run(commands::run::Args),
     /// Print a shell completion script.
     Completions(commands::completions::Args),
-    /// Print the man page (roff) to standard output.
+    /// Print the man pages (roff): the main page, one verb's, or all into a folder.
     Man(commands::man::Args),
+    /// Internal: the local executor for one campaign (started by legwork itself,
+    /// detached; not for users).
+    #[command(hide = true, name = "local-executor")]
+    LocalExecutor(commands::submit::ExecutorArgs),
 }

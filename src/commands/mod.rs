@@ -36,5 +36,6 @@ pub fn dispatch(command: Command, global: &Global) -> anyhow::Result<()> {
         Command::Run(a) => run::run(a, global),
         Command::Completions(a) => completions::run(a, global),
         Command::Man(a) => man::run(a, global),
+        Command::LocalExecutor(a) => submit::run_executor(a),
     }
 }

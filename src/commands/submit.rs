@@ -11,35 +11,40 @@ use std::path::PathBuf;
 #[derive(Debug, clap::Args)]
 pub struct Args {
     /// The campaign file.
-    #[arg(required_unless_present = "local_executor")]
-    pub file: Option<PathBuf>,
+    pub file: PathBuf,
     /// The campaign's tree is here instead of the file's `root:`.
     #[arg(long, value_name = "DIR")]
     pub root: Option<PathBuf>,
     /// Seconds to wait for another legwork holding the campaign's lock.
     #[arg(long, default_value_t = 10.0)]
     pub lock_wait: f64,
-    /// Internal: run the local executor for the campaign rooted here (started by
-    /// legwork itself, detached).
-    #[arg(long, hide = true, value_name = "ROOT")]
-    pub local_executor: Option<PathBuf>,
-    /// Internal: the local executor's concurrency.
-    #[arg(long, hide = true, requires = "local_executor")]
+}
+
+/// Options of the hidden `legwork local-executor` (started by the local
+/// scheduler, detached).
+#[derive(Debug, clap::Args)]
+pub struct ExecutorArgs {
+    /// The campaign root whose `.legwork/local/` queue to run.
+    pub root: PathBuf,
+    /// Tasks at once (default: the machine's cores).
+    #[arg(long)]
     pub max_parallel: Option<usize>,
+}
+
+/// Runs the local executor until its queue is empty.
+pub fn run_executor(args: ExecutorArgs) -> anyhow::Result<()> {
+    let n = args.max_parallel.unwrap_or_else(|| {
+        std::thread::available_parallelism()
+            .map(|n| n.get())
+            .unwrap_or(1)
+    });
+    crate::scheduler::local_executor::run(&args.root, n)?;
+    Ok(())
 }
 
 /// Runs `legwork submit`.
 pub fn run(args: Args, global: &Global) -> anyhow::Result<()> {
-    if let Some(root) = &args.local_executor {
-        let n = args.max_parallel.unwrap_or_else(|| {
-            std::thread::available_parallelism()
-                .map(|n| n.get())
-                .unwrap_or(1)
-        });
-        crate::scheduler::local_executor::run(root, n)?;
-        return Ok(());
-    }
-    let file = args.file.expect("clap requires it");
+    let file = args.file;
     // The tree first (idempotent: unchanged scripts are left alone, hand-edited
     // ones protected), so `submit` works on a fresh campaign.
     let loaded = super::watch::load(&file, args.root.clone())?;

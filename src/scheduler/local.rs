@@ -227,8 +227,7 @@ impl Local {
             .open(&log)
             .map_err(|e| SchedulerError::io(&log, e))?;
         let mut cmd = std::process::Command::new(&exe);
-        cmd.arg("submit")
-            .arg("--local-executor")
+        cmd.arg("local-executor")
             .arg(&self.root)
             .arg("--max-parallel")
             .arg(self.max_parallel.to_string())
@@ -245,7 +244,7 @@ impl Local {
             });
         }
         tracing::debug!(
-            "starting the local executor: {} submit --local-executor {}",
+            "starting the local executor: {} local-executor {}",
             exe.display(),
             self.root.display()
         );

@@ -12,6 +12,7 @@ mod skip;
 mod browser;
 mod campaign_errors;
 mod campaign_new;
+mod cli;
 mod crash;
 mod cycle;
 mod cycle_demo;

@@ -1,6 +1,6 @@
 //! The terminal summary: ranked ligands, worst edges, agreement with experiment, warnings.
 
-use super::results::Results;
+use crate::analysis::Results;
 use crate::network::stats::{Interval, Stats};
 use crate::network::Offset;
 use std::io::{self, Write};

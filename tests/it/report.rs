@@ -4,7 +4,8 @@
 use crate::report_fixture as fixture;
 
 use assert_cmd::Command;
-use legwork::report::{self, print_summary, write_all, Results};
+use legwork::analysis::Results;
+use legwork::report::{self, print_summary, write_all};
 use std::collections::HashMap;
 use std::path::Path;
 
@@ -156,7 +157,7 @@ fn html_is_one_self_contained_file_with_plots_and_cautions() {
     assert!(html.contains("Predicted against measured ΔG"));
     assert!(html.contains("Predicted against measured ΔΔG"));
     assert!(html.contains("±1 and ±2 kcal/mol"));
-    assert!(html.contains("TI area"));
+    assert!(html.contains("against λ — TI "));
     assert!(html.contains("Forward and reverse convergence"));
     // A leg with two λ components gets one dU/dλ series (and legend entry) each.
     assert!(
@@ -289,8 +290,8 @@ fn undefined_numbers_survive_summary_json() {
 
 #[test]
 fn absolute_campaign_reports_one_cycle_per_ligand_with_the_restraint_correction() {
+    use legwork::analysis::{assemble, CampaignInfo, LegReplica};
     use legwork::cycle::{BoreschRestraint, CampaignKind, LegSpec};
-    use legwork::report::{assemble, CampaignInfo, LegReplica};
     use legwork::units::EnergyUnit;
     let restraint = BoreschRestraint {
         r0: 6.0,
@@ -337,6 +338,7 @@ fn absolute_campaign_reports_one_cycle_per_ligand_with_the_restraint_correction(
         overlap: vec![],
         min_adjacent_overlap: Some(0.01),
         windows: vec![],
+        ti: None,
         convergence: None,
         warnings: vec![],
     };
@@ -377,28 +379,84 @@ fn absolute_campaign_reports_one_cycle_per_ligand_with_the_restraint_correction(
 }
 
 #[test]
-fn ti_area_sums_over_lambda_components() {
-    use legwork::report::plots::trapezoid;
-    use legwork::report::WindowSummary;
-    // Trapezoid rule by hand: component a, λ 0 → 1 with dU/dλ 2 → 4: area 3;
-    // component b, λ 0 → 0.5 → 1 with 1, 1, 3: 0.5 + 1 = 1.5. Total 4.5.
-    let w = |c: &str, lambda: f64, dudl_mean: f64| WindowSummary {
-        lambda,
-        component: Some(c.into()),
-        dudl_mean,
-        dudl_sem: 0.1,
-        frames: None,
-        discarded: None,
-        inefficiency: None,
-    };
-    let ws = [
-        w("a", 0.0, 2.0),
-        w("a", 1.0, 4.0),
-        w("b", 0.0, 1.0),
-        w("b", 0.5, 1.0),
-        w("b", 1.0, 3.0),
-    ];
-    assert!((trapezoid(&ws) - 4.5).abs() < 1e-12);
+fn dudl_plot_names_the_reported_ti_value_not_a_recomputed_one() {
+    // The analysis reports TI; the plot's title must show exactly that number.
+    // Give the leg a TI value far from the area under its points, so a title
+    // recomputed from the points would not match.
+    let mut leg = fixture::results().legs[0].clone();
+    leg.ti = Some(legwork::analysis::MethodValue {
+        method: "ti".into(),
+        dg: 12.345,
+        sigma: 0.678,
+    });
+    let svg = legwork::report::plots::dudl(&leg, "kcal/mol")
+        .unwrap()
+        .unwrap();
+    assert!(svg.contains("TI 12.35 ± 0.68 kcal/mol"), "title not found");
+    leg.ti.as_mut().unwrap().method = "ti_spline".into();
+    let svg = legwork::report::plots::dudl(&leg, "kcal/mol")
+        .unwrap()
+        .unwrap();
+    assert!(svg.contains("TI (spline) 12.35 ± 0.68"));
+    // No TI computed: the title gives no number at all.
+    leg.ti = None;
+    let svg = legwork::report::plots::dudl(&leg, "kcal/mol")
+        .unwrap()
+        .unwrap();
+    assert!(!svg.contains(" ± "), "a TI value appeared from nowhere");
+}
+
+/// The text of every `<text>` element of an SVG drawn by plotters.
+fn svg_texts(svg: &str) -> Vec<String> {
+    svg.split("<text")
+        .skip(1)
+        .filter_map(|t| {
+            let body = &t[t.find('>')? + 1..t.find("</text>")?];
+            Some(body.trim().to_string())
+        })
+        .collect()
+}
+
+#[test]
+fn overlap_cells_keep_the_leading_zero_and_dot_tiny_values() {
+    use legwork::report::{overlap_label, overlap_text, OVERLAP_DOT};
+    // The fixture's overlap rows are exp(-1.3 |i - j|), normalised; with 12
+    // states the far corners are ~1e-7, the diagonal ~0.57.
+    let leg = fixture::results().legs[0].clone();
+    let svg = legwork::report::plots::overlap(&leg).unwrap().unwrap();
+    let texts = svg_texts(&svg);
+    let k = leg.overlap.len();
+    let mut cells = 0;
+    for row in &leg.overlap {
+        for &v in row {
+            // Expected spelling, worked out independently: two significant
+            // figures as a fixed-point number (v ≥ 0.01) or a dot.
+            let digits = if v >= 0.1 { 2 } else { 3 };
+            let expected = if v < 0.01 {
+                OVERLAP_DOT.to_string()
+            } else {
+                format!("{v:.digits$}")
+            };
+            assert_eq!(overlap_label(v), expected, "{v}");
+            cells += 1;
+        }
+    }
+    assert_eq!(cells, k * k);
+    let numbers: Vec<&String> = texts.iter().filter(|t| t.starts_with("0.")).collect();
+    let dots = texts.iter().filter(|t| *t == OVERLAP_DOT).count();
+    let expect_numbers = leg.overlap.iter().flatten().filter(|&&v| v >= 0.01).count();
+    // Key ticks are spelled like the cells; count the cells' labels only.
+    assert!(numbers.len() >= expect_numbers, "{numbers:?}");
+    assert!(dots >= k * k - expect_numbers, "{dots} dots");
+    assert!(
+        !texts.iter().any(|t| t.starts_with('.')),
+        "a label without its leading zero: {texts:?}"
+    );
+    assert!(
+        texts.iter().any(|t| t.contains("below")),
+        "no key for the dot"
+    );
+    assert_eq!(overlap_text(0.00312), "3.1e-3");
 }
 
 #[test]
@@ -466,9 +524,9 @@ fn odd_inputs_still_render() {
 
 #[test]
 fn leg_replica_from_a_real_estimate_is_in_the_campaign_unit() {
+    use legwork::analysis::LegReplica;
     use legwork::collect::{LegSamples, WindowSamples};
     use legwork::estimate::{estimate_leg, EstimateOptions, Method};
-    use legwork::report::LegReplica;
     use legwork::units::{kt_in, EnergyUnit};
     use rand::SeedableRng;
     use rand_distr::{Distribution, Normal};
@@ -517,13 +575,22 @@ fn leg_replica_from_a_real_estimate_is_in_the_campaign_unit() {
         .windows
         .iter()
         .all(|w| w.component.is_none() && w.frames == Some(1500)));
-    // The TI area of the converted windows is the trapezoid TI estimate, in kcal/mol.
-    let ti = est.estimates[&Method::Ti].delta_g * kt;
-    assert!((legwork::report::plots::trapezoid(&r.windows) - ti).abs() < 1e-9);
+    // The TI value the ⟨dU/dλ⟩ plot names is the estimator's own trapezoid TI
+    // (headline MBAR is not a TI method), converted to kcal/mol.
+    let ti = r.ti.as_ref().expect("TI was computed");
+    assert_eq!(ti.method, "ti");
+    assert!((ti.dg - est.estimates[&Method::Ti].delta_g * kt).abs() < 1e-12);
+    assert!((ti.sigma - est.estimates[&Method::Ti].sigma * kt).abs() < 1e-12);
     assert_eq!(r.overlap.len(), 5);
     assert!(r.convergence.is_some());
-    assert!(
-        LegReplica::from_estimate("x", "complex", 1, 1.0, &est, Method::TiSpline, unit).is_some()
-            == est.estimates.contains_key(&Method::TiSpline)
+    let spline = LegReplica::from_estimate("x", "complex", 1, 1.0, &est, Method::TiSpline, unit);
+    assert_eq!(
+        spline.is_some(),
+        est.estimates.contains_key(&Method::TiSpline)
     );
+    if let Some(s) = spline {
+        // A TI headline is the TI value shown.
+        assert_eq!(s.ti.as_ref().map(|t| t.method.as_str()), Some("ti_spline"));
+        assert_eq!(s.ti.unwrap().dg, s.dg);
+    }
 }

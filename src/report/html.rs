@@ -180,7 +180,7 @@ impl Page {
             closures: closure_rows(r),
             missing: r.missing.clone(),
             legs: leg_views(r)?,
-            overlap_floor: overlap_text(OVERLAP_FLOOR),
+            overlap_floor: OVERLAP_FLOOR.to_string(),
             version: env!("CARGO_PKG_VERSION"),
         })
     }
@@ -484,8 +484,7 @@ fn leg_figures(r: &Results, l: &LegReplica) -> Result<Vec<Figure>, HtmlError> {
     let mut figures = Vec::new();
     if let Some(svg) = plots::overlap(l)? {
         figures.push(Figure::new(svg, &format!(
-            "Overlap between states: two significant figures per cell, a dot below {}, colour on a √ scale (key on the right). Neighbouring states should overlap well above {MIN_OVERLAP} (rule of thumb).",
-            overlap_text(OVERLAP_FLOOR),
+            "Overlap between states: two significant figures per cell, a dot below {OVERLAP_FLOOR}, colour on a √ scale (key on the right). Neighbouring states should overlap well above {MIN_OVERLAP} (rule of thumb).",
         )));
     }
     if let Some(svg) = plots::dudl(l, &unit)? {

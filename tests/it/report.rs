@@ -594,3 +594,26 @@ fn leg_replica_from_a_real_estimate_is_in_the_campaign_unit() {
         assert_eq!(s.ti.unwrap().dg, s.dg);
     }
 }
+
+#[test]
+fn text_from_the_campaign_is_escaped_on_the_page() {
+    // Names and notes come from user files; the page's templates escape every
+    // value (tera autoescape), so markup in them shows as text.
+    let mut r = fixture::results();
+    r.campaign = "<script>alert('x')</script> & co".into();
+    r.warnings.push("ligand \"<b>bold</b>\" & friends".into());
+    r.missing[0].note = "<i>late</i>".into();
+    let html = legwork::report::html::render(&r).unwrap();
+    for raw in ["<script", "<b>bold", "<i>late"] {
+        assert!(!html.contains(raw), "{raw} reached the page unescaped");
+    }
+    assert!(
+        html.contains("&lt;script&gt;alert("),
+        "campaign name not escaped"
+    );
+    assert!(html.contains("&lt;b&gt;bold&lt;"), "warning not escaped");
+    assert!(html.contains("&amp; co"));
+    assert!(html.contains("&lt;i&gt;late&lt;"));
+    // The plots stay inline SVG, not escaped text.
+    assert!(html.matches("<svg").count() >= 3);
+}

@@ -32,11 +32,19 @@ fn num(row: &HashMap<String, String>, col: &str) -> f64 {
         .unwrap_or_else(|_| panic!("{col} = {:?}", row[col]))
 }
 
-#[test]
-fn tables_have_the_agreed_columns_and_values() {
+/// The fixture written to a fresh folder.
+fn written() -> (tempfile::TempDir, Results) {
     let dir = tempfile::tempdir().unwrap();
     let r = fixture::results();
     let w = write_all(dir.path(), &r).unwrap();
+    assert_eq!(w.html, dir.path().join("report/index.html"));
+    assert_eq!(w.files.len(), 6);
+    (dir, r)
+}
+
+#[test]
+fn every_table_is_written_and_summary_json_is_the_results_model() {
+    let (dir, r) = written();
     for f in [
         "legs.csv",
         "edges.csv",
@@ -46,9 +54,14 @@ fn tables_have_the_agreed_columns_and_values() {
     ] {
         assert!(dir.path().join("results").join(f).is_file(), "{f} missing");
     }
-    assert_eq!(w.html, dir.path().join("report/index.html"));
-    assert_eq!(w.files.len(), 6);
+    let back: Results = report::load(dir.path()).unwrap();
+    assert_eq!(back.edges.len(), r.edges.len());
+    assert_eq!(back.campaign, "orrin-fixture");
+}
 
+#[test]
+fn edges_csv_has_the_agreed_columns_and_values() {
+    let (dir, r) = written();
     // edges.csv: at least ligand_a, ligand_b, ddg, sigma, in the campaign unit.
     let (h, rows) = read_csv(&dir.path().join("results/edges.csv"));
     for c in [
@@ -74,7 +87,11 @@ fn tables_have_the_agreed_columns_and_values() {
     // The biased edge of the fixture (ork-05 → ork-06, +1.4) carries the residual flag.
     let biased = rows.iter().find(|x| x["ligand_a"] == "ork-05").unwrap();
     assert!(biased["flags"].contains("residual"), "{biased:?}");
+}
 
+#[test]
+fn ligands_csv_is_ranked_with_a_centred_column() {
+    let (dir, r) = written();
     // ligands.csv: ligand, dg, sigma, ranked most favourable first.
     let (h, rows) = read_csv(&dir.path().join("results/ligands.csv"));
     assert_eq!(&h[..3], &["ligand", "dg", "sigma"]);
@@ -88,7 +105,11 @@ fn tables_have_the_agreed_columns_and_values() {
         let shift = num(x, "dg") - num(x, "dg_minus_mean");
         assert!((shift - num(&rows[0], "dg") + num(&rows[0], "dg_minus_mean")).abs() < 1e-5);
     }
+}
 
+#[test]
+fn legs_and_cycles_csv_have_one_row_per_leg_replica_and_closure() {
+    let (dir, r) = written();
     // legs.csv: one row per leg replica, a column pair per estimator.
     let (h, rows) = read_csv(&dir.path().join("results/legs.csv"));
     for c in [
@@ -112,11 +133,6 @@ fn tables_have_the_agreed_columns_and_values() {
     let first = &rows[0];
     let path: Vec<&str> = first["ligands"].split('>').collect();
     assert_eq!(path.first(), path.last(), "a cycle ends where it starts");
-
-    // summary.json is the Results model itself.
-    let back: Results = report::load(dir.path()).unwrap();
-    assert_eq!(back.edges.len(), r.edges.len());
-    assert_eq!(back.campaign, "orrin-fixture");
 }
 
 #[test]

@@ -8,6 +8,7 @@
 
 #![warn(missing_docs)]
 
+pub mod analysis;
 pub mod campaign;
 pub mod cli;
 pub mod collect;

@@ -2,12 +2,12 @@
 //! cycles, solve the network, compare with experiment, and write results/ and the
 //! report. What is not finished is listed, not guessed.
 
+use crate::analysis::{self, Counts, Results};
 use crate::cli::Global;
-use crate::collect::gather::{collect_campaign, CollectCounts};
 use crate::commands::check::load_or_exit;
 use crate::exit::Exit;
 use crate::plan;
-use crate::report::{self, Results, Written};
+use crate::report::{self, Written};
 use crate::state::{CampaignState, TaskState};
 use indicatif::{ProgressBar, ProgressDrawTarget, ProgressStyle};
 use std::io::Write;
@@ -52,13 +52,13 @@ pub fn run(args: Args, global: &Global) -> anyhow::Result<()> {
     Ok(())
 }
 
-/// Collects the campaign using `state` to know which tasks are done, with a
+/// Analyses the campaign using `state` to know which tasks are done, with a
 /// progress bar on standard error.
 pub fn collect_with_state(
     campaign: &crate::campaign::Campaign,
     state: &CampaignState,
     global: &Global,
-) -> anyhow::Result<(Results, CollectCounts)> {
+) -> anyhow::Result<(Results, Counts)> {
     let plan = state.plan();
     let bar = ProgressBar::with_draw_target(
         Some(plan.windows.len() as u64),
@@ -75,7 +75,8 @@ pub fn collect_with_state(
     );
     bar.set_prefix("estimating");
     let done = |i: plan::TaskIndex| state.state(i) == TaskState::Done;
-    let result = collect_campaign(campaign, plan, &done, &|n, _| bar.set_position(n as u64));
+    let result =
+        analysis::analyse_campaign(campaign, plan, &done, &|n, _| bar.set_position(n as u64));
     bar.finish_and_clear();
     result.map_err(|e| Exit::new(crate::exit::ExitKind::Failure, e.to_string()).into())
 }
@@ -83,7 +84,7 @@ pub fn collect_with_state(
 /// Prints the terminal summary, what was read, and where the files are.
 pub fn print_outcome(
     results: &Results,
-    counts: &CollectCounts,
+    counts: &Counts,
     written: &Written,
     global: &Global,
 ) -> anyhow::Result<()> {

@@ -191,7 +191,8 @@ fn table(est: &LegEstimate, unit: EnergyUnit) -> String {
     if let Some(o) = est.min_adjacent_overlap {
         let _ = writeln!(
             s,
-            "\n  smallest overlap between neighbouring states: {o:.3}"
+            "\n  smallest overlap between neighbouring states: {}",
+            crate::report::overlap_text(o)
         );
     }
     let _ = writeln!(

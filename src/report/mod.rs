@@ -1,26 +1,22 @@
-//! Results tables (CSV, JSON), SVG plots and the HTML report.
+//! Formatting results: tables (CSV, JSON), SVG plots, the HTML report and the
+//! terminal summary. Nothing here computes a result: everything shown comes from
+//! the [`Results`] that [`crate::analysis`] produced.
 //!
-//! [`Results`] is the data model: [`LegReplica::from_estimate`] turns one leg
-//! replica's estimate into the report's entry, [`assemble`] builds the whole
-//! model from finished leg replicas, [`write_all`] writes `results/*.csv`, `results/summary.json` and
+//! [`write_all`] writes `results/*.csv`, `results/summary.json` and
 //! `report/index.html` under the campaign root, [`load`] reads summary.json back
 //! for re-rendering, and [`print_summary`] writes the terminal summary.
+//! [`overlap_label`] is the one place an overlap value is spelled.
 
-mod assemble;
-mod from_estimate;
+mod format;
 pub mod html;
-mod lenient;
 pub mod plots;
-mod results;
 mod summary;
 pub mod tables;
 
-pub use assemble::{assemble, leg_spec, AssembleError, CampaignInfo, MIN_OVERLAP};
-pub use from_estimate::method_name;
-pub use results::{
-    Convergence, LegReplica, MethodValue, MissingWork, Results, WindowSummary, RESULTS_SCHEMA,
-};
+pub use format::{overlap_label, overlap_text, OVERLAP_DOT, OVERLAP_FLOOR};
 pub use summary::print_summary;
+
+use crate::analysis::{Results, RESULTS_SCHEMA};
 
 use std::path::{Path, PathBuf};
 
@@ -38,9 +34,9 @@ pub struct Written {
 /// Why the report could not be written or read.
 #[derive(Debug, thiserror::Error)]
 pub enum ReportError {
-    /// A plot failed.
+    /// The HTML page (or one of its plots) could not be rendered.
     #[error(transparent)]
-    Plot(#[from] plots::PlotError),
+    Html(#[from] html::HtmlError),
     /// A file could not be written.
     #[error("cannot write {path}: {source}")]
     Write {

@@ -1,6 +1,7 @@
 //! The report's SVG plots (plotters, SVG backend), each returned as a string.
 
-use super::results::{Convergence, LegReplica, Results, WindowSummary};
+use super::format::{overlap_label, overlap_text, OVERLAP_DOT, OVERLAP_FLOOR};
+use crate::analysis::{Convergence, LegReplica, Results, WindowSummary};
 use plotters::coord::Shift;
 use plotters::prelude::*;
 use std::f64::consts::PI;
@@ -103,102 +104,135 @@ pub fn z_colour(z: f64) -> RGBColor {
     }
 }
 
+/// Where the network's ligands sit: evenly on a circle, the first at the top.
+struct Ring<'a> {
+    names: Vec<&'a str>,
+    centre: (f64, f64),
+    radius: f64,
+}
+
+impl Ring<'_> {
+    /// The angle of the i-th ligand.
+    fn angle(&self, i: usize) -> f64 {
+        2.0 * PI * i as f64 / self.names.len().max(1) as f64 - PI / 2.0
+    }
+
+    /// The pixel position of a ligand, if it is on the ring.
+    fn pos(&self, name: &str) -> Option<(i32, i32)> {
+        let a = self.angle(self.names.iter().position(|x| *x == name)?);
+        Some((
+            (self.centre.0 + self.radius * a.cos()) as i32,
+            (self.centre.1 + self.radius * a.sin()) as i32,
+        ))
+    }
+}
+
 /// The network drawn on a circle, edges coloured by |residual|/σ (or, before the
 /// network is solved, by σ relative to the largest σ).
 pub fn network(r: &Results) -> Result<String, PlotError> {
     let (w, h) = (540u32, 500u32);
+    let ring = Ring {
+        names: r.ligands.iter().map(|l| l.ligand.as_str()).collect(),
+        centre: (w as f64 / 2.0, h as f64 / 2.0 + 6.0),
+        radius: (h as f64 / 2.0) - 80.0,
+    };
     render("network", (w, h), |root| {
-        let names: Vec<&str> = r.ligands.iter().map(|l| l.ligand.as_str()).collect();
-        let n = names.len().max(1) as f64;
-        let (cx, cy, rad) = (
-            w as f64 / 2.0,
-            h as f64 / 2.0 + 6.0,
-            (h as f64 / 2.0) - 80.0,
-        );
-        let pos = |name: &str| -> Option<(i32, i32)> {
-            let i = names.iter().position(|x| *x == name)? as f64;
-            let a = 2.0 * PI * i / n - PI / 2.0;
-            Some(((cx + rad * a.cos()) as i32, (cy + rad * a.sin()) as i32))
-        };
         root.draw(&Text::new(
             "Network: edge colour = |residual| / σ",
             (16, 14),
             (FONT, 16).into_font().color(&INK),
         ))?;
-        let max_sigma = r.edges.iter().map(|e| e.sigma).fold(0.0, f64::max);
-        let mut drawn: Vec<(String, String)> = Vec::new();
-        for e in &r.edges {
-            let Some(b) = e.ligand_b.as_deref() else {
-                continue;
-            };
-            let (Some(p), Some(q)) = (pos(&e.ligand_a), pos(b)) else {
-                continue;
-            };
-            // Edges run more than once (e.g. both directions) are drawn side by side.
-            let key = if e.ligand_a.as_str() < b {
-                (e.ligand_a.clone(), b.to_string())
-            } else {
-                (b.to_string(), e.ligand_a.clone())
-            };
-            let repeat = drawn.iter().filter(|k| **k == key).count() as f64;
-            drawn.push(key);
-            let shift = if repeat == 0.0 { 0.0 } else { 6.0 * repeat };
-            let (dx, dy) = ((q.0 - p.0) as f64, (q.1 - p.1) as f64);
-            let norm = dx.hypot(dy).max(1.0);
-            let (ox, oy) = ((-dy / norm * shift) as i32, (dx / norm * shift) as i32);
-            let (p, q) = ((p.0 + ox, p.1 + oy), (q.0 + ox, q.1 + oy));
-            let z = match e.residual {
-                Some(x) if e.sigma > 0.0 => (x / e.sigma).abs(),
-                _ if max_sigma > 0.0 => 2.5 * e.sigma / max_sigma,
-                _ => 0.0,
-            };
-            let width = if e.flags.is_empty() { 3 } else { 5 };
-            root.draw(&PathElement::new(
-                vec![p, q],
-                z_colour(z).stroke_width(width),
-            ))?;
-        }
-        for (i, name) in names.iter().enumerate() {
-            let Some((x, y)) = pos(name) else { continue };
-            root.draw(&Circle::new((x, y), 9, PAPER.filled()))?;
-            root.draw(&Circle::new((x, y), 9, INK.stroke_width(2)))?;
-            let a = 2.0 * PI * i as f64 / n - PI / 2.0;
-            let (lx, ly) = (x as f64 + 22.0 * a.cos(), y as f64 + 22.0 * a.sin());
-            let est = 0.6 * 14.0 * name.chars().count() as f64;
-            let lx = if a.cos() < -0.3 {
-                lx - est
-            } else if a.cos() < 0.3 {
-                lx - est / 2.0
-            } else {
-                lx
-            };
-            root.draw(&Text::new(
-                name.to_string(),
-                (lx as i32, ly as i32 - 7),
-                (FONT, 14).into_font().color(&INK),
-            ))?;
-        }
-        let legend = [(GOOD, "≤ 1σ"), (FAIR, "1–2σ"), (BAD, "> 2σ")];
-        for (k, (c, label)) in legend.iter().enumerate() {
-            let x = 16 + 90 * k as i32;
-            let y = h as i32 - 22;
-            root.draw(&PathElement::new(
-                vec![(x, y), (x + 28, y)],
-                c.stroke_width(4),
-            ))?;
-            root.draw(&Text::new(
-                label.to_string(),
-                (x + 34, y - 7),
-                (FONT, 13).into_font().color(&INK),
-            ))?;
-        }
-        root.draw(&Text::new(
-            "thick: flagged edge",
-            (290, h as i32 - 29),
-            (FONT, 13).into_font().color(&MUTED),
-        ))?;
-        Ok(())
+        network_edges(root, r, &ring)?;
+        network_nodes(root, &ring)?;
+        network_legend(root, h as i32)
     })
+}
+
+/// One line per edge; edges run more than once (e.g. both directions) side by side.
+fn network_edges(root: &Area, r: &Results, ring: &Ring) -> DrawResult {
+    let max_sigma = r.edges.iter().map(|e| e.sigma).fold(0.0, f64::max);
+    let mut drawn: Vec<(String, String)> = Vec::new();
+    for e in &r.edges {
+        let Some(b) = e.ligand_b.as_deref() else {
+            continue;
+        };
+        let (Some(p), Some(q)) = (ring.pos(&e.ligand_a), ring.pos(b)) else {
+            continue;
+        };
+        let key = if e.ligand_a.as_str() < b {
+            (e.ligand_a.clone(), b.to_string())
+        } else {
+            (b.to_string(), e.ligand_a.clone())
+        };
+        let shift = 6.0 * drawn.iter().filter(|k| **k == key).count() as f64;
+        drawn.push(key);
+        let (dx, dy) = ((q.0 - p.0) as f64, (q.1 - p.1) as f64);
+        let norm = dx.hypot(dy).max(1.0);
+        let (ox, oy) = ((-dy / norm * shift) as i32, (dx / norm * shift) as i32);
+        let (p, q) = ((p.0 + ox, p.1 + oy), (q.0 + ox, q.1 + oy));
+        let z = match e.residual {
+            Some(x) if e.sigma > 0.0 => (x / e.sigma).abs(),
+            _ if max_sigma > 0.0 => 2.5 * e.sigma / max_sigma,
+            _ => 0.0,
+        };
+        let width = if e.flags.is_empty() { 3 } else { 5 };
+        root.draw(&PathElement::new(
+            vec![p, q],
+            z_colour(z).stroke_width(width),
+        ))?;
+    }
+    Ok(())
+}
+
+/// A circle and a name per ligand, the name outside the ring.
+fn network_nodes(root: &Area, ring: &Ring) -> DrawResult {
+    for (i, name) in ring.names.iter().enumerate() {
+        let Some((x, y)) = ring.pos(name) else {
+            continue;
+        };
+        root.draw(&Circle::new((x, y), 9, PAPER.filled()))?;
+        root.draw(&Circle::new((x, y), 9, INK.stroke_width(2)))?;
+        let a = ring.angle(i);
+        let (lx, ly) = (x as f64 + 22.0 * a.cos(), y as f64 + 22.0 * a.sin());
+        let est = 0.6 * 14.0 * name.chars().count() as f64;
+        let lx = if a.cos() < -0.3 {
+            lx - est
+        } else if a.cos() < 0.3 {
+            lx - est / 2.0
+        } else {
+            lx
+        };
+        root.draw(&Text::new(
+            name.to_string(),
+            (lx as i32, ly as i32 - 7),
+            (FONT, 14).into_font().color(&INK),
+        ))?;
+    }
+    Ok(())
+}
+
+/// The colour key along the bottom.
+fn network_legend(root: &Area, h: i32) -> DrawResult {
+    let legend = [(GOOD, "≤ 1σ"), (FAIR, "1–2σ"), (BAD, "> 2σ")];
+    for (k, (c, label)) in legend.iter().enumerate() {
+        let x = 16 + 90 * k as i32;
+        let y = h - 22;
+        root.draw(&PathElement::new(
+            vec![(x, y), (x + 28, y)],
+            c.stroke_width(4),
+        ))?;
+        root.draw(&Text::new(
+            label.to_string(),
+            (x + 34, y - 7),
+            (FONT, 13).into_font().color(&INK),
+        ))?;
+    }
+    root.draw(&Text::new(
+        "thick: flagged edge",
+        (290, h - 29),
+        (FONT, 13).into_font().color(&MUTED),
+    ))?;
+    Ok(())
 }
 
 /// Predicted against measured ΔG of each ligand with σ error bars, the
@@ -309,76 +343,142 @@ fn heat(v: f64) -> RGBColor {
     RGBColor(mix(a.0, b.0), mix(a.1, b.1), mix(a.2, b.2))
 }
 
-/// A leg replica's overlap matrix as a heatmap (state 0 top left).
+/// Width of the overlap plot's colour key, pixels.
+const KEY_WIDTH: u32 = 76;
+
+/// A leg replica's overlap matrix as a heatmap (state 0 top left), each cell
+/// labelled with [`overlap_label`] when the matrix is small enough to read, and
+/// a colour key on the right.
 pub fn overlap(leg: &LegReplica) -> Result<Option<String>, PlotError> {
     let k = leg.overlap.len();
     if k == 0 {
         return Ok(None);
     }
-    let ki = k as i32;
-    render("overlap", (330, 340), |root| {
-        // Rows are drawn bottom-up, so row i of the matrix sits at y = k − 1 − i.
-        let mut chart = ChartBuilder::on(root)
-            .caption("Overlap matrix", (FONT, 15).into_font().color(&INK))
-            .margin(10)
-            .x_label_area_size(34)
-            .y_label_area_size(30)
-            .build_cartesian_2d((0..ki - 1).into_segmented(), (0..ki - 1).into_segmented())?;
-        let every = (k / 12 + 1) as i32;
-        let label = move |v: &SegmentValue<i32>, flip: bool| match v {
-            SegmentValue::CenterOf(i) => {
-                let state = if flip { ki - 1 - i } else { *i };
-                if state % every == 0 {
-                    state.to_string()
-                } else {
-                    String::new()
-                }
-            }
-            _ => String::new(),
-        };
-        chart
-            .configure_mesh()
-            .disable_mesh()
-            .axis_style(MUTED)
-            .x_labels(k)
-            .y_labels(k)
-            .x_label_formatter(&|v| label(v, false))
-            .y_label_formatter(&|v| label(v, true))
-            .label_style((FONT, 10).into_font().color(&INK))
-            .x_desc("state")
-            .draw()?;
-        let (pw, ph) = chart.plotting_area().dim_in_pixel();
-        let (cw, ch) = (pw as f64 / k as f64, ph as f64 / k as f64);
-        for (i, row) in leg.overlap.iter().enumerate() {
-            let y = ki - 1 - i as i32;
-            for (j, &v) in row.iter().enumerate() {
-                let x = j as i32;
-                chart.draw_series(std::iter::once(Rectangle::new(
-                    [
-                        (SegmentValue::Exact(x), SegmentValue::Exact(y + 1)),
-                        (SegmentValue::Exact(x + 1), SegmentValue::Exact(y)),
-                    ],
-                    heat(v).filled(),
-                )))?;
-                if k <= 14 && v >= 0.005 {
-                    let colour = if v.sqrt() > 0.55 { PAPER } else { INK };
-                    let size = if k <= 8 { 12.0 } else { 9.0 };
-                    let text = format!("{v:.2}").trim_start_matches('0').to_string();
-                    let w = 0.6 * size * text.len() as f64;
-                    chart.draw_series(std::iter::once(
-                        EmptyElement::at((SegmentValue::Exact(x), SegmentValue::Exact(y + 1)))
-                            + Text::new(
-                                text,
-                                (((cw - w) / 2.0) as i32, ((ch - 0.8 * size) / 2.0) as i32),
-                                (FONT, size).into_font().color(&colour),
-                            ),
-                    ))?;
-                }
-            }
-        }
-        Ok(())
+    let (w, h) = (330 + KEY_WIDTH, 340);
+    render("overlap", (w, h), |root| {
+        let (matrix, key) = root.split_horizontally(w - KEY_WIDTH);
+        overlap_cells(&matrix, &leg.overlap)?;
+        overlap_key(&key)
     })
     .map(Some)
+}
+
+/// The heatmap itself.
+fn overlap_cells(area: &Area, overlap: &[Vec<f64>]) -> DrawResult {
+    let k = overlap.len();
+    let ki = k as i32;
+    // Rows are drawn bottom-up, so row i of the matrix sits at y = k − 1 − i.
+    let mut chart = ChartBuilder::on(area)
+        .caption("Overlap matrix", (FONT, 15).into_font().color(&INK))
+        .margin(10)
+        .x_label_area_size(34)
+        .y_label_area_size(30)
+        .build_cartesian_2d((0..ki - 1).into_segmented(), (0..ki - 1).into_segmented())?;
+    let every = (k / 12 + 1) as i32;
+    let label = move |v: &SegmentValue<i32>, flip: bool| match v {
+        SegmentValue::CenterOf(i) => {
+            let state = if flip { ki - 1 - i } else { *i };
+            if state % every == 0 {
+                state.to_string()
+            } else {
+                String::new()
+            }
+        }
+        _ => String::new(),
+    };
+    chart
+        .configure_mesh()
+        .disable_mesh()
+        .axis_style(MUTED)
+        .x_labels(k)
+        .y_labels(k)
+        .x_label_formatter(&|v| label(v, false))
+        .y_label_formatter(&|v| label(v, true))
+        .label_style((FONT, 10).into_font().color(&INK))
+        .x_desc("state")
+        .draw()?;
+    let (pw, ph) = chart.plotting_area().dim_in_pixel();
+    let cell = (pw as f64 / k as f64, ph as f64 / k as f64);
+    let labels: Vec<Vec<String>> = overlap
+        .iter()
+        .map(|row| row.iter().map(|&v| overlap_label(v)).collect())
+        .collect();
+    // One font size for the whole matrix, the largest at which its longest
+    // label fits its cell; too small to read means no labels.
+    let longest = labels.iter().flatten().map(|l| l.chars().count()).max();
+    let size = (0.9 * cell.0 / (0.58 * longest.unwrap_or(1).max(1) as f64)).min(12.0);
+    let readable = k <= 16 && size >= 6.5;
+    for (i, row) in overlap.iter().enumerate() {
+        let y = ki - 1 - i as i32;
+        for (j, &v) in row.iter().enumerate() {
+            let x = j as i32;
+            let corner = (SegmentValue::Exact(x), SegmentValue::Exact(y + 1));
+            chart.draw_series(std::iter::once(Rectangle::new(
+                [
+                    corner.clone(),
+                    (SegmentValue::Exact(x + 1), SegmentValue::Exact(y)),
+                ],
+                heat(v).filled(),
+            )))?;
+            let text = &labels[i][j];
+            if readable && !text.is_empty() {
+                let colour = if v.sqrt() > 0.55 { PAPER } else { INK };
+                let tw = 0.58 * size * text.chars().count() as f64;
+                let at = (
+                    ((cell.0 - tw) / 2.0) as i32,
+                    ((cell.1 - 0.8 * size) / 2.0) as i32,
+                );
+                chart.draw_series(std::iter::once(
+                    EmptyElement::at(corner)
+                        + Text::new(text.clone(), at, (FONT, size).into_font().color(&colour)),
+                ))?;
+            }
+        }
+    }
+    Ok(())
+}
+
+/// The colour key: a bar from 1 (top) to 0 on the heatmap's √ scale, ticks
+/// spelled like the cells, and what the dot means.
+fn overlap_key(area: &Area) -> DrawResult {
+    let (x0, top, bar_w, bar_h) = (8, 46, 14, 220);
+    let steps = 44;
+    for s in 0..steps {
+        // t runs down the bar from 1 to 0; the value at t is t² (√ scale).
+        let t = 1.0 - (s as f64 + 0.5) / steps as f64;
+        let y = top + bar_h * s / steps;
+        area.draw(&Rectangle::new(
+            [(x0, y), (x0 + bar_w, top + bar_h * (s + 1) / steps)],
+            heat(t * t).filled(),
+        ))?;
+    }
+    area.draw(&Rectangle::new(
+        [(x0, top), (x0 + bar_w, top + bar_h)],
+        MUTED.stroke_width(1),
+    ))?;
+    for v in [1.0, 0.3, 0.1, 0.03, OVERLAP_FLOOR] {
+        let y = top + ((1.0 - v.sqrt()) * bar_h as f64) as i32;
+        area.draw(&PathElement::new(
+            vec![(x0 + bar_w, y), (x0 + bar_w + 4, y)],
+            MUTED.stroke_width(1),
+        ))?;
+        area.draw(&Text::new(
+            overlap_text(v),
+            (x0 + bar_w + 7, y - 5),
+            (FONT, 10).into_font().color(&INK),
+        ))?;
+    }
+    area.draw(&Text::new(
+        format!("{OVERLAP_DOT} below"),
+        (x0, top + bar_h + 12),
+        (FONT, 10).into_font().color(&MUTED),
+    ))?;
+    area.draw(&Text::new(
+        overlap_text(OVERLAP_FLOOR),
+        (x0, top + bar_h + 25),
+        (FONT, 10).into_font().color(&MUTED),
+    ))?;
+    Ok(())
 }
 
 /// The windows grouped by λ component, in first-appearance order, keeping only
@@ -398,21 +498,36 @@ fn by_component(windows: &[WindowSummary]) -> Vec<(String, Vec<&WindowSummary>)>
     groups
 }
 
-/// Trapezoid-rule TI estimate (Kirkwood 1935): Σ over λ components of
-/// ∫ ⟨∂U/∂λ_c⟩ dλ_c, each along the states in order.
-pub fn trapezoid(windows: &[WindowSummary]) -> f64 {
-    by_component(windows)
-        .iter()
-        .map(|(_, ws)| {
-            ws.windows(2)
-                .map(|w| 0.5 * (w[0].dudl_mean + w[1].dudl_mean) * (w[1].lambda - w[0].lambda))
-                .sum::<f64>()
-        })
-        .sum()
+/// Colours of the λ components' series, in order.
+const SERIES: [RGBColor; 4] = [
+    TEAL,
+    ORANGE,
+    RGBColor(0x5b, 0x4b, 0x9a),
+    RGBColor(0x8a, 0x6d, 0x1f),
+];
+
+/// The title of the ⟨dU/dλ⟩ plot: the TI value the analysis reported for the
+/// leg (never recomputed from the points shown).
+fn dudl_title(leg: &LegReplica, unit: &str) -> String {
+    match &leg.ti {
+        Some(t) if t.dg.is_finite() => {
+            let name = if t.method == "ti_spline" {
+                "TI (spline)"
+            } else {
+                "TI"
+            };
+            format!(
+                "⟨dU/dλ⟩ against λ — {name} {} ± {} {unit}",
+                super::format::f2(t.dg),
+                super::format::f2(t.sigma)
+            )
+        }
+        _ => "⟨dU/dλ⟩ against λ".to_string(),
+    }
 }
 
-/// Mean dU/dλ against λ with ±SEM bars and the TI area shaded, one series per
-/// λ component.
+/// Mean dU/dλ against λ with ±SEM bars and the area under it shaded, one series
+/// per λ component; the title names the leg's reported TI estimate.
 pub fn dudl(leg: &LegReplica, unit: &str) -> Result<Option<String>, PlotError> {
     let groups = by_component(&leg.windows);
     if groups.iter().all(|g| g.1.len() < 2) {
@@ -427,19 +542,10 @@ pub fn dudl(leg: &LegReplica, unit: &str) -> Result<Option<String>, PlotError> {
         ]
     }));
     let (xlo, xhi) = range(all().map(|w| w.lambda));
-    let area = trapezoid(&leg.windows);
-    let colours = [
-        TEAL,
-        ORANGE,
-        RGBColor(0x5b, 0x4b, 0x9a),
-        RGBColor(0x8a, 0x6d, 0x1f),
-    ];
+    let title = dudl_title(leg, unit);
     render("dU/dλ", (380, 330), |root| {
         let mut chart = ChartBuilder::on(root)
-            .caption(
-                format!("⟨dU/dλ⟩ against λ — TI area {area:.2} {unit}"),
-                (FONT, 15).into_font().color(&INK),
-            )
+            .caption(title, (FONT, 15).into_font().color(&INK))
             .margin(12)
             .x_label_area_size(38)
             .y_label_area_size(60)
@@ -458,33 +564,49 @@ pub fn dudl(leg: &LegReplica, unit: &str) -> Result<Option<String>, PlotError> {
             MUTED.stroke_width(1),
         ))?;
         for (k, (name, ws)) in groups.iter().enumerate() {
-            let colour = colours[k % colours.len()];
-            let pts: Vec<(f64, f64)> = ws.iter().map(|w| (w.lambda, w.dudl_mean)).collect();
-            chart.draw_series(AreaSeries::new(pts.clone(), 0.0, colour.mix(0.16)))?;
-            let line = chart.draw_series(LineSeries::new(pts.clone(), colour.stroke_width(2)))?;
-            if groups.len() > 1 {
-                line.label(name.clone()).legend(move |(x, y)| {
-                    PathElement::new(vec![(x, y), (x + 18, y)], colour.stroke_width(2))
-                });
-            }
-            for w in ws {
-                let s = w.dudl_sem.abs();
-                error_bar(&mut chart, w.lambda, w.dudl_mean - s, w.dudl_mean + s, 3)?;
-            }
-            chart.draw_series(pts.iter().map(|&p| Circle::new(p, 3, colour.filled())))?;
+            let label = (groups.len() > 1).then_some(name.as_str());
+            dudl_series(&mut chart, ws, SERIES[k % SERIES.len()], label)?;
         }
         if groups.len() > 1 {
-            chart
-                .configure_series_labels()
-                .background_style(PAPER.mix(0.9))
-                .border_style(MUTED)
-                .label_font((FONT, 11).into_font().color(&INK))
-                .position(SeriesLabelPosition::UpperRight)
-                .draw()?;
+            series_key(&mut chart)?;
         }
         Ok(())
     })
     .map(Some)
+}
+
+/// One λ component: shaded area, line, ±SEM bars and points.
+fn dudl_series(
+    chart: &mut Chart,
+    ws: &[&WindowSummary],
+    colour: RGBColor,
+    label: Option<&str>,
+) -> DrawResult {
+    let pts: Vec<(f64, f64)> = ws.iter().map(|w| (w.lambda, w.dudl_mean)).collect();
+    chart.draw_series(AreaSeries::new(pts.clone(), 0.0, colour.mix(0.16)))?;
+    let line = chart.draw_series(LineSeries::new(pts.clone(), colour.stroke_width(2)))?;
+    if let Some(name) = label {
+        line.label(name).legend(move |(x, y)| {
+            PathElement::new(vec![(x, y), (x + 18, y)], colour.stroke_width(2))
+        });
+    }
+    for w in ws {
+        let s = w.dudl_sem.abs();
+        error_bar(chart, w.lambda, w.dudl_mean - s, w.dudl_mean + s, 3)?;
+    }
+    chart.draw_series(pts.iter().map(|&p| Circle::new(p, 3, colour.filled())))?;
+    Ok(())
+}
+
+/// The series' key in the upper right corner.
+fn series_key<'a, 'b: 'a>(chart: &mut Chart<'a, 'b>) -> DrawResult {
+    chart
+        .configure_series_labels()
+        .background_style(PAPER.mix(0.9))
+        .border_style(MUTED)
+        .label_font((FONT, 11).into_font().color(&INK))
+        .position(SeriesLabelPosition::UpperRight)
+        .draw()
 }
 
 /// ΔG from growing fractions of the data, forward (from the start) and reverse
@@ -494,13 +616,6 @@ pub fn convergence(c: &Convergence, unit: &str) -> Result<Option<String>, PlotEr
     if n == 0 {
         return Ok(None);
     }
-    let sig = |v: &[f64], i: usize| {
-        v.get(i)
-            .copied()
-            .filter(|s| s.is_finite())
-            .unwrap_or(0.0)
-            .abs()
-    };
     let (ylo, yhi) = range((0..n).flat_map(|i| {
         [
             c.forward[i] - sig(&c.forward_sigma, i),
@@ -528,37 +643,23 @@ pub fn convergence(c: &Convergence, unit: &str) -> Result<Option<String>, PlotEr
             .y_desc(format!("ΔG ({unit})"))
             .label_style((FONT, 11).into_font().color(&INK))
             .draw()?;
-        for (values, sigmas, colour, label) in [
-            (
-                &c.forward,
-                &c.forward_sigma,
-                TEAL,
-                "forward (from the start)",
-            ),
-            (
-                &c.reverse,
-                &c.reverse_sigma,
-                ORANGE,
-                "reverse (from the end)",
-            ),
-        ] {
-            let upper = (0..n).map(|i| (c.fractions[i], values[i] + sig(sigmas, i)));
-            let lower = (0..n)
-                .rev()
-                .map(|i| (c.fractions[i], values[i] - sig(sigmas, i)));
-            chart.draw_series(std::iter::once(Polygon::new(
-                upper.chain(lower).collect::<Vec<_>>(),
-                colour.mix(0.15).filled(),
-            )))?;
-            let line: Vec<(f64, f64)> = (0..n).map(|i| (c.fractions[i], values[i])).collect();
-            chart
-                .draw_series(LineSeries::new(line.clone(), colour.stroke_width(2)))?
-                .label(label)
-                .legend(move |(x, y)| {
-                    PathElement::new(vec![(x, y), (x + 18, y)], colour.stroke_width(2))
-                });
-            chart.draw_series(line.iter().map(|&p| Circle::new(p, 3, colour.filled())))?;
-        }
+        let fractions = &c.fractions[..n];
+        let forward = (&c.forward[..n], &c.forward_sigma[..]);
+        let reverse = (&c.reverse[..n], &c.reverse_sigma[..]);
+        convergence_series(
+            &mut chart,
+            fractions,
+            forward,
+            TEAL,
+            "forward (from the start)",
+        )?;
+        convergence_series(
+            &mut chart,
+            fractions,
+            reverse,
+            ORANGE,
+            "reverse (from the end)",
+        )?;
         let final_value = c.forward[n - 1];
         chart.draw_series(DashedLineSeries::new(
             [(0.0, final_value), (1.02, final_value)],
@@ -566,14 +667,42 @@ pub fn convergence(c: &Convergence, unit: &str) -> Result<Option<String>, PlotEr
             4,
             MUTED.stroke_width(1),
         ))?;
-        chart
-            .configure_series_labels()
-            .background_style(PAPER.mix(0.9))
-            .border_style(MUTED)
-            .label_font((FONT, 11).into_font().color(&INK))
-            .position(SeriesLabelPosition::UpperRight)
-            .draw()?;
-        Ok(())
+        series_key(&mut chart)
     })
     .map(Some)
+}
+
+/// The i-th σ of a series, 0 when missing or undefined.
+fn sig(v: &[f64], i: usize) -> f64 {
+    v.get(i)
+        .copied()
+        .filter(|s| s.is_finite())
+        .unwrap_or(0.0)
+        .abs()
+}
+
+/// One convergence series (values and their σ) as a ±σ band, a line and points.
+fn convergence_series(
+    chart: &mut Chart,
+    fractions: &[f64],
+    (values, sigmas): (&[f64], &[f64]),
+    colour: RGBColor,
+    label: &'static str,
+) -> DrawResult {
+    let n = fractions.len();
+    let upper = (0..n).map(|i| (fractions[i], values[i] + sig(sigmas, i)));
+    let lower = (0..n)
+        .rev()
+        .map(|i| (fractions[i], values[i] - sig(sigmas, i)));
+    chart.draw_series(std::iter::once(Polygon::new(
+        upper.chain(lower).collect::<Vec<_>>(),
+        colour.mix(0.15).filled(),
+    )))?;
+    let line: Vec<(f64, f64)> = (0..n).map(|i| (fractions[i], values[i])).collect();
+    chart
+        .draw_series(LineSeries::new(line.clone(), colour.stroke_width(2)))?
+        .label(label)
+        .legend(move |(x, y)| PathElement::new(vec![(x, y), (x + 18, y)], colour.stroke_width(2)));
+    chart.draw_series(line.iter().map(|&p| Circle::new(p, 3, colour.filled())))?;
+    Ok(())
 }

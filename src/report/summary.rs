@@ -1,6 +1,6 @@
 //! The terminal summary: ranked ligands, worst edges, agreement with experiment, warnings.
 
-use super::results::Results;
+use crate::analysis::Results;
 use crate::network::stats::{Interval, Stats};
 use crate::network::Offset;
 use std::io::{self, Write};
@@ -28,71 +28,17 @@ fn stats_line(s: &Stats) -> String {
 
 /// Writes the summary for a terminal (plain text, no colour codes).
 pub fn print_summary(r: &Results, out: &mut dyn Write) -> io::Result<()> {
-    let u = r.unit;
     writeln!(
         out,
         "{} — {} campaign, {} at {} K, headline estimator {}",
         r.campaign,
         r.kind.as_str(),
-        u,
+        r.unit,
         r.temperature_k,
         r.estimator
     )?;
-    if r.ligands.is_empty() {
-        writeln!(out, "No ligand has a result yet.")?;
-    } else {
-        let offset = match r.offsets.as_slice() {
-            [] => "absolute cycles".to_string(),
-            [Offset::Measured { count }] => format!("offset: mean of {count} measured"),
-            [Offset::Reference { ligand }] => format!("offset: {ligand} at 0"),
-            [Offset::SeriesMean] => "offset: series mean at 0".to_string(),
-            many => format!("{} disconnected parts", many.len()),
-        };
-        writeln!(out, "\nLigands, most favourable first ({offset}):")?;
-        writeln!(
-            out,
-            "  {:>4}  {:<16} {:>9} {:>7} {:>9}",
-            "rank", "ligand", "ΔG", "σ", "measured"
-        )?;
-        for (i, l) in r.ranked_ligands().iter().enumerate() {
-            let m = l.measured.map(|m| format!("{m:9.2}")).unwrap_or_default();
-            writeln!(
-                out,
-                "  {:>4}  {:<16} {:>9.2} {:>7.2} {:>9}",
-                i + 1,
-                l.ligand,
-                l.dg,
-                l.sigma,
-                m
-            )?;
-        }
-    }
-    if !r.edges.is_empty() && r.edges.iter().any(|e| e.ligand_b.is_some()) {
-        writeln!(out, "\nEdges to look at first:")?;
-        for e in r.worst_edges().into_iter().take(WORST_EDGES) {
-            let resid = match (e.residual, e.sigma > 0.0) {
-                (Some(x), true) => format!("  residual {x:+.2} ({:.1}σ)", (x / e.sigma).abs()),
-                _ => String::new(),
-            };
-            let flags = if e.flags.is_empty() {
-                String::new()
-            } else {
-                format!(
-                    "  [{}]",
-                    e.flags
-                        .iter()
-                        .map(|f| f.as_str())
-                        .collect::<Vec<_>>()
-                        .join(", ")
-                )
-            };
-            writeln!(
-                out,
-                "  {:<28} ΔΔG {:+7.2} ± {:.2}{resid}{flags}",
-                e.subject, e.ddg, e.sigma
-            )?;
-        }
-    }
+    ligands(r, out)?;
+    edges(r, out)?;
     if !r.cycles.is_empty() {
         let bad = r.cycles.iter().filter(|c| c.flagged).count();
         writeln!(
@@ -103,7 +49,11 @@ pub fn print_summary(r: &Results, out: &mut dyn Write) -> io::Result<()> {
         )?;
     }
     if let Some(s) = &r.statistics {
-        writeln!(out, "\nAgainst experiment ({u}, bootstrap 95% intervals):")?;
+        writeln!(
+            out,
+            "\nAgainst experiment ({}, bootstrap 95% intervals):",
+            r.unit
+        )?;
         if s.ligands.n > 0 {
             writeln!(
                 out,
@@ -116,35 +66,107 @@ pub fn print_summary(r: &Results, out: &mut dyn Write) -> io::Result<()> {
             writeln!(out, "  edges   (n={}): {}", s.edges.n, stats_line(&s.edges))?;
         }
     }
-    if !r.missing.is_empty() {
-        writeln!(out, "\nNot finished ({} leg replicas):", r.missing.len())?;
-        for m in r.missing.iter().take(10) {
-            writeln!(
-                out,
-                "  {}/{}/r{}: {}/{} windows {}",
-                m.subject, m.leg, m.replica, m.windows_done, m.windows_total, m.note
-            )?;
-        }
-        if r.missing.len() > 10 {
-            writeln!(
-                out,
-                "  … and {} more (see summary.json)",
-                r.missing.len() - 10
-            )?;
-        }
+    missing(r, out)?;
+    warnings(r, out)
+}
+
+/// The ligands, most favourable first, and how their offset was fixed.
+fn ligands(r: &Results, out: &mut dyn Write) -> io::Result<()> {
+    if r.ligands.is_empty() {
+        return writeln!(out, "No ligand has a result yet.");
     }
+    let offset = match r.offsets.as_slice() {
+        [] => "absolute cycles".to_string(),
+        [Offset::Measured { count }] => format!("offset: mean of {count} measured"),
+        [Offset::Reference { ligand }] => format!("offset: {ligand} at 0"),
+        [Offset::SeriesMean] => "offset: series mean at 0".to_string(),
+        many => format!("{} disconnected parts", many.len()),
+    };
+    writeln!(out, "\nLigands, most favourable first ({offset}):")?;
+    writeln!(
+        out,
+        "  {:>4}  {:<16} {:>9} {:>7} {:>9}",
+        "rank", "ligand", "ΔG", "σ", "measured"
+    )?;
+    for (i, l) in r.ranked_ligands().iter().enumerate() {
+        let m = l.measured.map(|m| format!("{m:9.2}")).unwrap_or_default();
+        writeln!(
+            out,
+            "  {:>4}  {:<16} {:>9.2} {:>7.2} {:>9}",
+            i + 1,
+            l.ligand,
+            l.dg,
+            l.sigma,
+            m
+        )?;
+    }
+    Ok(())
+}
+
+/// The worst edges of a relative campaign, with their residuals and flags.
+fn edges(r: &Results, out: &mut dyn Write) -> io::Result<()> {
+    if r.edges.is_empty() || !r.edges.iter().any(|e| e.ligand_b.is_some()) {
+        return Ok(());
+    }
+    writeln!(out, "\nEdges to look at first:")?;
+    for e in r.worst_edges().into_iter().take(WORST_EDGES) {
+        let resid = match (e.residual, e.sigma > 0.0) {
+            (Some(x), true) => format!("  residual {x:+.2} ({:.1}σ)", (x / e.sigma).abs()),
+            _ => String::new(),
+        };
+        let flags = if e.flags.is_empty() {
+            String::new()
+        } else {
+            let names: Vec<&str> = e.flags.iter().map(|f| f.as_str()).collect();
+            format!("  [{}]", names.join(", "))
+        };
+        writeln!(
+            out,
+            "  {:<28} ΔΔG {:+7.2} ± {:.2}{resid}{flags}",
+            e.subject, e.ddg, e.sigma
+        )?;
+    }
+    Ok(())
+}
+
+/// The unfinished leg replicas (the first ten).
+fn missing(r: &Results, out: &mut dyn Write) -> io::Result<()> {
+    if r.missing.is_empty() {
+        return Ok(());
+    }
+    writeln!(out, "\nNot finished ({} leg replicas):", r.missing.len())?;
+    for m in r.missing.iter().take(10) {
+        writeln!(
+            out,
+            "  {}/{}/r{}: {}/{} windows {}",
+            m.subject, m.leg, m.replica, m.windows_done, m.windows_total, m.note
+        )?;
+    }
+    if r.missing.len() > 10 {
+        writeln!(
+            out,
+            "  … and {} more (see summary.json)",
+            r.missing.len() - 10
+        )?;
+    }
+    Ok(())
+}
+
+/// Campaign warnings and the count of the legs' own.
+fn warnings(r: &Results, out: &mut dyn Write) -> io::Result<()> {
     let leg_warnings: usize = r.legs.iter().map(|l| l.warnings.len()).sum();
-    if !r.warnings.is_empty() || leg_warnings > 0 {
-        writeln!(out, "\nWarnings:")?;
-        for w in &r.warnings {
-            writeln!(out, "  - {w}")?;
-        }
-        if leg_warnings > 0 {
-            writeln!(
-                out,
-                "  - {leg_warnings} estimator warning(s) on individual legs (see the report)"
-            )?;
-        }
+    if r.warnings.is_empty() && leg_warnings == 0 {
+        return Ok(());
+    }
+    writeln!(out, "\nWarnings:")?;
+    for w in &r.warnings {
+        writeln!(out, "  - {w}")?;
+    }
+    if leg_warnings > 0 {
+        writeln!(
+            out,
+            "  - {leg_warnings} estimator warning(s) on individual legs (see the report)"
+        )?;
     }
     Ok(())
 }

@@ -1,6 +1,6 @@
 //! results/*.csv and results/summary.json, rendered in memory.
 
-use super::results::Results;
+use crate::analysis::Results;
 use std::collections::BTreeSet;
 
 fn num(v: f64) -> String {

@@ -5,6 +5,7 @@
 //! against them: every edge within 3σ, per-ligand ΔG (less the series mean)
 //! within 0.3 kcal/mol RMSE.
 
+use legwork::analysis::{assemble, CampaignInfo, LegReplica};
 use legwork::campaign::{self, LoadOptions};
 use legwork::collect::experiment::read_measured;
 use legwork::collect::{read_leg, ReaderConfig};
@@ -13,7 +14,6 @@ use legwork::demo::run::{run, RunConfig};
 use legwork::demo::scenario::read_ligands;
 use legwork::demo::system::ToySystem;
 use legwork::estimate::{estimate_leg, EstimateOptions};
-use legwork::report::{assemble, CampaignInfo, LegReplica};
 use std::collections::HashMap;
 use std::path::Path;
 

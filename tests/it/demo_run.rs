@@ -130,8 +130,7 @@ fn partial_campaign_lists_what_is_missing(root: &Path) {
     let set = &plan.windows[0];
     let unfinished = set.tasks[5];
     let (results, counts) =
-        legwork::collect::gather::collect_campaign(&c, &plan, &|i| i != unfinished, &|_, _| {})
-            .unwrap();
+        legwork::analysis::analyse_campaign(&c, &plan, &|i| i != unfinished, &|_, _| {}).unwrap();
     assert_eq!(counts.missing, 1);
     assert_eq!(
         counts.parsed, 0,

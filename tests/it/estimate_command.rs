@@ -109,6 +109,16 @@ fn table_lists_methods_windows_and_convergence() {
     ] {
         assert!(text.contains(needle), "missing {needle} in\n{text}");
     }
+    // Overlaps are spelled with their leading zero (or in scientific notation).
+    let line = text
+        .lines()
+        .find(|l| l.contains("smallest overlap"))
+        .unwrap();
+    let value = line.rsplit(' ').next().unwrap();
+    assert!(
+        value.parse::<f64>().is_ok() && !value.starts_with('.'),
+        "{line}"
+    );
     assert!(
         text.lines()
             .any(|l| l.trim_start().starts_with("2 ") && l.contains(" 10 ")),

@@ -4,7 +4,8 @@
 use crate::report_fixture as fixture;
 
 use assert_cmd::Command;
-use legwork::report::{self, print_summary, write_all, Results};
+use legwork::analysis::Results;
+use legwork::report::{self, print_summary, write_all};
 use std::collections::HashMap;
 use std::path::Path;
 
@@ -31,11 +32,19 @@ fn num(row: &HashMap<String, String>, col: &str) -> f64 {
         .unwrap_or_else(|_| panic!("{col} = {:?}", row[col]))
 }
 
-#[test]
-fn tables_have_the_agreed_columns_and_values() {
+/// The fixture written to a fresh folder.
+fn written() -> (tempfile::TempDir, Results) {
     let dir = tempfile::tempdir().unwrap();
     let r = fixture::results();
     let w = write_all(dir.path(), &r).unwrap();
+    assert_eq!(w.html, dir.path().join("report/index.html"));
+    assert_eq!(w.files.len(), 6);
+    (dir, r)
+}
+
+#[test]
+fn every_table_is_written_and_summary_json_is_the_results_model() {
+    let (dir, r) = written();
     for f in [
         "legs.csv",
         "edges.csv",
@@ -45,9 +54,14 @@ fn tables_have_the_agreed_columns_and_values() {
     ] {
         assert!(dir.path().join("results").join(f).is_file(), "{f} missing");
     }
-    assert_eq!(w.html, dir.path().join("report/index.html"));
-    assert_eq!(w.files.len(), 6);
+    let back: Results = report::load(dir.path()).unwrap();
+    assert_eq!(back.edges.len(), r.edges.len());
+    assert_eq!(back.campaign, "orrin-fixture");
+}
 
+#[test]
+fn edges_csv_has_the_agreed_columns_and_values() {
+    let (dir, r) = written();
     // edges.csv: at least ligand_a, ligand_b, ddg, sigma, in the campaign unit.
     let (h, rows) = read_csv(&dir.path().join("results/edges.csv"));
     for c in [
@@ -73,7 +87,11 @@ fn tables_have_the_agreed_columns_and_values() {
     // The biased edge of the fixture (ork-05 → ork-06, +1.4) carries the residual flag.
     let biased = rows.iter().find(|x| x["ligand_a"] == "ork-05").unwrap();
     assert!(biased["flags"].contains("residual"), "{biased:?}");
+}
 
+#[test]
+fn ligands_csv_is_ranked_with_a_centred_column() {
+    let (dir, r) = written();
     // ligands.csv: ligand, dg, sigma, ranked most favourable first.
     let (h, rows) = read_csv(&dir.path().join("results/ligands.csv"));
     assert_eq!(&h[..3], &["ligand", "dg", "sigma"]);
@@ -87,7 +105,11 @@ fn tables_have_the_agreed_columns_and_values() {
         let shift = num(x, "dg") - num(x, "dg_minus_mean");
         assert!((shift - num(&rows[0], "dg") + num(&rows[0], "dg_minus_mean")).abs() < 1e-5);
     }
+}
 
+#[test]
+fn legs_and_cycles_csv_have_one_row_per_leg_replica_and_closure() {
+    let (dir, r) = written();
     // legs.csv: one row per leg replica, a column pair per estimator.
     let (h, rows) = read_csv(&dir.path().join("results/legs.csv"));
     for c in [
@@ -111,11 +133,6 @@ fn tables_have_the_agreed_columns_and_values() {
     let first = &rows[0];
     let path: Vec<&str> = first["ligands"].split('>').collect();
     assert_eq!(path.first(), path.last(), "a cycle ends where it starts");
-
-    // summary.json is the Results model itself.
-    let back: Results = report::load(dir.path()).unwrap();
-    assert_eq!(back.edges.len(), r.edges.len());
-    assert_eq!(back.campaign, "orrin-fixture");
 }
 
 #[test]
@@ -156,7 +173,7 @@ fn html_is_one_self_contained_file_with_plots_and_cautions() {
     assert!(html.contains("Predicted against measured ΔG"));
     assert!(html.contains("Predicted against measured ΔΔG"));
     assert!(html.contains("±1 and ±2 kcal/mol"));
-    assert!(html.contains("TI area"));
+    assert!(html.contains("against λ — TI "));
     assert!(html.contains("Forward and reverse convergence"));
     // A leg with two λ components gets one dU/dλ series (and legend entry) each.
     assert!(
@@ -289,8 +306,8 @@ fn undefined_numbers_survive_summary_json() {
 
 #[test]
 fn absolute_campaign_reports_one_cycle_per_ligand_with_the_restraint_correction() {
+    use legwork::analysis::{assemble, CampaignInfo, LegReplica};
     use legwork::cycle::{BoreschRestraint, CampaignKind, LegSpec};
-    use legwork::report::{assemble, CampaignInfo, LegReplica};
     use legwork::units::EnergyUnit;
     let restraint = BoreschRestraint {
         r0: 6.0,
@@ -337,6 +354,7 @@ fn absolute_campaign_reports_one_cycle_per_ligand_with_the_restraint_correction(
         overlap: vec![],
         min_adjacent_overlap: Some(0.01),
         windows: vec![],
+        ti: None,
         convergence: None,
         warnings: vec![],
     };
@@ -377,28 +395,84 @@ fn absolute_campaign_reports_one_cycle_per_ligand_with_the_restraint_correction(
 }
 
 #[test]
-fn ti_area_sums_over_lambda_components() {
-    use legwork::report::plots::trapezoid;
-    use legwork::report::WindowSummary;
-    // Trapezoid rule by hand: component a, λ 0 → 1 with dU/dλ 2 → 4: area 3;
-    // component b, λ 0 → 0.5 → 1 with 1, 1, 3: 0.5 + 1 = 1.5. Total 4.5.
-    let w = |c: &str, lambda: f64, dudl_mean: f64| WindowSummary {
-        lambda,
-        component: Some(c.into()),
-        dudl_mean,
-        dudl_sem: 0.1,
-        frames: None,
-        discarded: None,
-        inefficiency: None,
-    };
-    let ws = [
-        w("a", 0.0, 2.0),
-        w("a", 1.0, 4.0),
-        w("b", 0.0, 1.0),
-        w("b", 0.5, 1.0),
-        w("b", 1.0, 3.0),
-    ];
-    assert!((trapezoid(&ws) - 4.5).abs() < 1e-12);
+fn dudl_plot_names_the_reported_ti_value_not_a_recomputed_one() {
+    // The analysis reports TI; the plot's title must show exactly that number.
+    // Give the leg a TI value far from the area under its points, so a title
+    // recomputed from the points would not match.
+    let mut leg = fixture::results().legs[0].clone();
+    leg.ti = Some(legwork::analysis::MethodValue {
+        method: "ti".into(),
+        dg: 12.345,
+        sigma: 0.678,
+    });
+    let svg = legwork::report::plots::dudl(&leg, "kcal/mol")
+        .unwrap()
+        .unwrap();
+    assert!(svg.contains("TI 12.35 ± 0.68 kcal/mol"), "title not found");
+    leg.ti.as_mut().unwrap().method = "ti_spline".into();
+    let svg = legwork::report::plots::dudl(&leg, "kcal/mol")
+        .unwrap()
+        .unwrap();
+    assert!(svg.contains("TI (spline) 12.35 ± 0.68"));
+    // No TI computed: the title gives no number at all.
+    leg.ti = None;
+    let svg = legwork::report::plots::dudl(&leg, "kcal/mol")
+        .unwrap()
+        .unwrap();
+    assert!(!svg.contains(" ± "), "a TI value appeared from nowhere");
+}
+
+/// The text of every `<text>` element of an SVG drawn by plotters.
+fn svg_texts(svg: &str) -> Vec<String> {
+    svg.split("<text")
+        .skip(1)
+        .filter_map(|t| {
+            let body = &t[t.find('>')? + 1..t.find("</text>")?];
+            Some(body.trim().to_string())
+        })
+        .collect()
+}
+
+#[test]
+fn overlap_cells_keep_the_leading_zero_and_dot_tiny_values() {
+    use legwork::report::{overlap_label, overlap_text, OVERLAP_DOT};
+    // The fixture's overlap rows are exp(-1.3 |i - j|), normalised; with 12
+    // states the far corners are ~1e-7, the diagonal ~0.57.
+    let leg = fixture::results().legs[0].clone();
+    let svg = legwork::report::plots::overlap(&leg).unwrap().unwrap();
+    let texts = svg_texts(&svg);
+    let k = leg.overlap.len();
+    let mut cells = 0;
+    for row in &leg.overlap {
+        for &v in row {
+            // Expected spelling, worked out independently: two significant
+            // figures as a fixed-point number (v ≥ 0.01) or a dot.
+            let digits = if v >= 0.1 { 2 } else { 3 };
+            let expected = if v < 0.01 {
+                OVERLAP_DOT.to_string()
+            } else {
+                format!("{v:.digits$}")
+            };
+            assert_eq!(overlap_label(v), expected, "{v}");
+            cells += 1;
+        }
+    }
+    assert_eq!(cells, k * k);
+    let numbers: Vec<&String> = texts.iter().filter(|t| t.starts_with("0.")).collect();
+    let dots = texts.iter().filter(|t| *t == OVERLAP_DOT).count();
+    let expect_numbers = leg.overlap.iter().flatten().filter(|&&v| v >= 0.01).count();
+    // Key ticks are spelled like the cells; count the cells' labels only.
+    assert!(numbers.len() >= expect_numbers, "{numbers:?}");
+    assert!(dots >= k * k - expect_numbers, "{dots} dots");
+    assert!(
+        !texts.iter().any(|t| t.starts_with('.')),
+        "a label without its leading zero: {texts:?}"
+    );
+    assert!(
+        texts.iter().any(|t| t.contains("below")),
+        "no key for the dot"
+    );
+    assert_eq!(overlap_text(0.00312), "3.1e-3");
 }
 
 #[test]
@@ -466,9 +540,9 @@ fn odd_inputs_still_render() {
 
 #[test]
 fn leg_replica_from_a_real_estimate_is_in_the_campaign_unit() {
+    use legwork::analysis::LegReplica;
     use legwork::collect::{LegSamples, WindowSamples};
     use legwork::estimate::{estimate_leg, EstimateOptions, Method};
-    use legwork::report::LegReplica;
     use legwork::units::{kt_in, EnergyUnit};
     use rand::SeedableRng;
     use rand_distr::{Distribution, Normal};
@@ -517,13 +591,45 @@ fn leg_replica_from_a_real_estimate_is_in_the_campaign_unit() {
         .windows
         .iter()
         .all(|w| w.component.is_none() && w.frames == Some(1500)));
-    // The TI area of the converted windows is the trapezoid TI estimate, in kcal/mol.
-    let ti = est.estimates[&Method::Ti].delta_g * kt;
-    assert!((legwork::report::plots::trapezoid(&r.windows) - ti).abs() < 1e-9);
+    // The TI value the ⟨dU/dλ⟩ plot names is the estimator's own trapezoid TI
+    // (headline MBAR is not a TI method), converted to kcal/mol.
+    let ti = r.ti.as_ref().expect("TI was computed");
+    assert_eq!(ti.method, "ti");
+    assert!((ti.dg - est.estimates[&Method::Ti].delta_g * kt).abs() < 1e-12);
+    assert!((ti.sigma - est.estimates[&Method::Ti].sigma * kt).abs() < 1e-12);
     assert_eq!(r.overlap.len(), 5);
     assert!(r.convergence.is_some());
-    assert!(
-        LegReplica::from_estimate("x", "complex", 1, 1.0, &est, Method::TiSpline, unit).is_some()
-            == est.estimates.contains_key(&Method::TiSpline)
+    let spline = LegReplica::from_estimate("x", "complex", 1, 1.0, &est, Method::TiSpline, unit);
+    assert_eq!(
+        spline.is_some(),
+        est.estimates.contains_key(&Method::TiSpline)
     );
+    if let Some(s) = spline {
+        // A TI headline is the TI value shown.
+        assert_eq!(s.ti.as_ref().map(|t| t.method.as_str()), Some("ti_spline"));
+        assert_eq!(s.ti.unwrap().dg, s.dg);
+    }
+}
+
+#[test]
+fn text_from_the_campaign_is_escaped_on_the_page() {
+    // Names and notes come from user files; the page's templates escape every
+    // value (tera autoescape), so markup in them shows as text.
+    let mut r = fixture::results();
+    r.campaign = "<script>alert('x')</script> & co".into();
+    r.warnings.push("ligand \"<b>bold</b>\" & friends".into());
+    r.missing[0].note = "<i>late</i>".into();
+    let html = legwork::report::html::render(&r).unwrap();
+    for raw in ["<script", "<b>bold", "<i>late"] {
+        assert!(!html.contains(raw), "{raw} reached the page unescaped");
+    }
+    assert!(
+        html.contains("&lt;script&gt;alert("),
+        "campaign name not escaped"
+    );
+    assert!(html.contains("&lt;b&gt;bold&lt;"), "warning not escaped");
+    assert!(html.contains("&amp; co"));
+    assert!(html.contains("&lt;i&gt;late&lt;"));
+    // The plots stay inline SVG, not escaped text.
+    assert!(html.matches("<svg").count() >= 3);
 }

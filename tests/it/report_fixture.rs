@@ -5,12 +5,12 @@
 
 #![allow(dead_code)]
 
-use legwork::collect::experiment::parse_measured;
-use legwork::cycle::{CampaignKind, LegSpec};
-use legwork::report::{
+use legwork::analysis::{
     assemble, CampaignInfo, Convergence, LegReplica, MethodValue, MissingWork, Results,
     WindowSummary,
 };
+use legwork::collect::experiment::parse_measured;
+use legwork::cycle::{CampaignKind, LegSpec};
 use legwork::units::EnergyUnit;
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
@@ -107,7 +107,7 @@ fn leg(
         reverse_sigma: fractions.iter().map(|f| sigma / f.sqrt()).collect(),
         fractions,
     };
-    let methods = [("ti", 0.05), ("bar", 0.01), ("mbar", 0.0)]
+    let methods: Vec<MethodValue> = [("ti", 0.05), ("bar", 0.01), ("mbar", 0.0)]
         .iter()
         .map(|(m, off)| MethodValue {
             method: m.to_string(),
@@ -115,6 +115,7 @@ fn leg(
             sigma,
         })
         .collect();
+    let ti = methods.iter().find(|m| m.method == "ti").cloned();
     LegReplica {
         subject: subject.to_string(),
         leg: leg.to_string(),
@@ -126,6 +127,7 @@ fn leg(
         overlap,
         min_adjacent_overlap: Some(min_adj),
         windows,
+        ti,
         convergence: Some(convergence),
         warnings: if replica == 3 && subject == "ork-03+ork-04" {
             vec!["window 11: equilibration detection kept only 180 of 2000 frames".to_string()]

@@ -1,4 +1,4 @@
-//! The data model the report renders. [`Results`] is exactly what
+//! The analysis's results: what the report formats. [`Results`] is exactly what
 //! `results/summary.json` holds; `legwork report` reads it back and re-renders.
 
 use crate::cycle::{CampaignKind, EdgeResult};
@@ -127,7 +127,7 @@ pub struct LegReplica {
     pub leg: String,
     /// Replica number (from 1).
     pub replica: u32,
-    /// Sign of the leg in its cycle (shown in the tables; [`crate::report::assemble`]
+    /// Sign of the leg in its cycle (shown in the tables; [`crate::analysis::assemble`]
     /// closes cycles with the campaign's own leg signs).
     pub sign: f64,
     /// ΔG of the headline estimator, campaign unit.
@@ -148,6 +148,11 @@ pub struct LegReplica {
     /// Per-window λ, dU/dλ and diagnostics, in state order.
     #[serde(default)]
     pub windows: Vec<WindowSummary>,
+    /// The TI estimate the ⟨dU/dλ⟩ plot names: the headline estimator when it is
+    /// a TI method, else trapezoid TI (`ti`), else `ti_spline`; absent when no
+    /// TI was computed. One of [`LegReplica::methods`], never recomputed.
+    #[serde(default)]
+    pub ti: Option<MethodValue>,
     /// Forward and reverse convergence.
     #[serde(default)]
     pub convergence: Option<Convergence>,

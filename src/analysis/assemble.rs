@@ -1,0 +1,248 @@
+//! From finished leg replicas to a full [`Results`]: cycles, network, statistics
+//! and the campaign-level warnings, one step per function.
+
+use super::info::CampaignInfo;
+use super::results::{LegReplica, MissingWork, Results, RESULTS_SCHEMA};
+use crate::collect::experiment::IC50_NOTE;
+use crate::cycle::{combine_edge, CampaignKind, CycleError, EdgeResult, LegValue};
+use crate::network::stats::compare_all;
+use crate::network::{annotate_edges, solve, LigandEstimate, Measured, MeasuredKind};
+use crate::network::{CycleClosure, Hysteresis, NetworkEdge, NetworkError, Offset};
+use crate::plan::Subject;
+
+/// Smallest adjacent-window overlap considered comfortable (rule of thumb,
+/// common practice, no single source).
+pub const MIN_OVERLAP: f64 = 0.03;
+
+/// Why results could not be assembled.
+#[derive(Debug, thiserror::Error)]
+pub enum AssembleError {
+    /// A cycle could not be closed for a reason other than unfinished legs.
+    #[error(transparent)]
+    Cycle(#[from] CycleError),
+    /// The network could not be solved.
+    #[error(transparent)]
+    Network(#[from] NetworkError),
+    /// A relative campaign's subject id is not `a+b`.
+    #[error("subject '{0}' of a relative campaign is not of the form ligand_a+ligand_b")]
+    Subject(String),
+}
+
+/// Closes every subject's cycle, solves the network (relative campaigns),
+/// compares with `measured` and collects warnings. Subjects with a leg that has
+/// no finished replica are left out with a warning; list them in `missing`.
+///
+/// # Errors
+///
+/// A cycle that cannot be closed (other than for an unfinished leg), a network
+/// that cannot be solved, or a relative campaign's subject that is not `a+b`.
+pub fn assemble(
+    info: &CampaignInfo,
+    legs: Vec<LegReplica>,
+    measured: Vec<Measured>,
+    missing: Vec<MissingWork>,
+) -> Result<Results, AssembleError> {
+    let mut warnings = Vec::new();
+    let mut edges = close_cycles(info, &legs, &mut warnings)?;
+    let ligands = match info.kind {
+        CampaignKind::Relative if !edges.is_empty() => {
+            fit_network(info, &mut edges, &measured, &mut warnings)?
+        }
+        CampaignKind::Relative => Ligands::default(),
+        _ => Ligands::from_cycles(&edges, &measured),
+    };
+    let statistics = (!measured.is_empty()).then(|| {
+        let pairs: Vec<(String, f64)> = ligands
+            .ligands
+            .iter()
+            .map(|l| (l.ligand.clone(), l.dg))
+            .collect();
+        compare_all(&pairs, &edges, &measured, info.seed)
+    });
+    campaign_warnings(&legs, &measured, &missing, &mut warnings);
+    Ok(Results {
+        schema: RESULTS_SCHEMA,
+        campaign: info.name.clone(),
+        kind: info.kind,
+        unit: info.unit,
+        temperature_k: info.temperature_k,
+        estimator: info.estimator.clone(),
+        generated_at: Some(chrono::Utc::now().to_rfc3339_opts(chrono::SecondsFormat::Secs, true)),
+        legs,
+        edges,
+        ligands: ligands.ligands,
+        offsets: ligands.offsets,
+        cycles: ligands.cycles,
+        hysteresis: ligands.hysteresis,
+        measured,
+        statistics,
+        missing,
+        warnings,
+    })
+}
+
+/// The subjects in order of first appearance.
+fn subjects(legs: &[LegReplica]) -> Vec<&str> {
+    let mut subjects: Vec<&str> = Vec::new();
+    for l in legs {
+        if !subjects.contains(&l.subject.as_str()) {
+            subjects.push(&l.subject);
+        }
+    }
+    subjects
+}
+
+/// A subject id as the cycle sees it: an edge `a+b` (relative) or a ligand.
+fn subject(info: &CampaignInfo, id: &str) -> Result<Subject, AssembleError> {
+    Ok(match info.kind {
+        CampaignKind::Relative => {
+            let (a, b) = id
+                .split_once('+')
+                .ok_or_else(|| AssembleError::Subject(id.to_string()))?;
+            Subject::Edge {
+                a: a.to_string(),
+                b: b.to_string(),
+            }
+        }
+        _ => Subject::Ligand { id: id.to_string() },
+    })
+}
+
+/// One cycle per subject from its leg replicas; a subject with an unfinished
+/// leg is left out with a warning.
+fn close_cycles(
+    info: &CampaignInfo,
+    legs: &[LegReplica],
+    warnings: &mut Vec<String>,
+) -> Result<Vec<EdgeResult>, AssembleError> {
+    let mut edges = Vec::new();
+    for s in subjects(legs) {
+        let values: Vec<LegValue> = legs
+            .iter()
+            .filter(|l| l.subject == s)
+            .map(|l| LegValue {
+                leg: l.leg.clone(),
+                replica: l.replica,
+                dg: l.dg,
+                sigma: l.sigma,
+            })
+            .collect();
+        let subject = subject(info, s)?;
+        match combine_edge(&subject, &info.legs, &values, info.temperature_k, info.unit) {
+            Ok(e) => edges.push(e),
+            Err(CycleError::MissingLeg { subject, leg }) => warnings.push(format!(
+                "{subject}: leg '{leg}' has no finished replica yet, so this {} is left out",
+                if info.kind == CampaignKind::Relative {
+                    "edge"
+                } else {
+                    "ligand"
+                }
+            )),
+            Err(e) => return Err(e.into()),
+        }
+    }
+    Ok(edges)
+}
+
+/// Per-ligand results and what the network adds to them.
+#[derive(Default)]
+struct Ligands {
+    ligands: Vec<LigandEstimate>,
+    offsets: Vec<Offset>,
+    cycles: Vec<CycleClosure>,
+    hysteresis: Vec<Hysteresis>,
+}
+
+impl Ligands {
+    /// Absolute and solvation campaigns: each ligand's cycle is its ΔG.
+    fn from_cycles(edges: &[EdgeResult], measured: &[Measured]) -> Ligands {
+        let measured_of = |id: &str| measured.iter().find(|m| m.ligand == id).map(|m| m.dg);
+        Ligands {
+            ligands: edges
+                .iter()
+                .map(|e| LigandEstimate {
+                    ligand: e.ligand_a.clone(),
+                    dg: e.ddg,
+                    sigma: e.sigma,
+                    measured: measured_of(&e.ligand_a),
+                    component: 0,
+                })
+                .collect(),
+            ..Ligands::default()
+        }
+    }
+}
+
+/// Relative campaigns: the weighted network fit over the edges with a usable σ,
+/// its residuals written back onto the edges.
+fn fit_network(
+    info: &CampaignInfo,
+    edges: &mut [EdgeResult],
+    measured: &[Measured],
+    warnings: &mut Vec<String>,
+) -> Result<Ligands, AssembleError> {
+    // An edge without a usable σ cannot be weighted; leave it out of the fit (it
+    // stays in the tables) rather than lose the whole network.
+    let usable = |e: &&EdgeResult| e.sigma.is_finite() && e.sigma > 0.0;
+    for e in edges.iter().filter(|e| !usable(e)) {
+        warnings.push(format!(
+            "{}: σ = {} cannot weight the network fit, so this edge is left out of it",
+            e.subject, e.sigma
+        ));
+    }
+    let net: Vec<NetworkEdge> = edges.iter().filter(usable).map(NetworkEdge::from).collect();
+    if net.is_empty() {
+        return Err(NetworkError::Empty.into());
+    }
+    let fit = solve(&net, measured, info.reference.as_deref())?;
+    annotate_edges(edges, &fit);
+    warnings.extend(fit.warnings.iter().cloned());
+    let n_flag = fit.edges.iter().filter(|e| e.flagged).count();
+    if n_flag > 0 {
+        warnings.push(format!(
+            "{n_flag} edge(s) disagree with the network by more than 2σ (flag 'residual')"
+        ));
+    }
+    let n_cyc = fit.cycles.iter().filter(|c| c.flagged).count();
+    if n_cyc > 0 {
+        warnings.push(format!(
+            "{n_cyc} cycle(s) do not close within 2σ (see cycles.csv)"
+        ));
+    }
+    Ok(Ligands {
+        ligands: fit.ligands,
+        offsets: fit.offsets,
+        cycles: fit.cycles,
+        hysteresis: fit.hysteresis,
+    })
+}
+
+/// Warnings about the campaign as a whole: IC50 measurements, low overlap,
+/// unfinished work.
+fn campaign_warnings(
+    legs: &[LegReplica],
+    measured: &[Measured],
+    missing: &[MissingWork],
+    warnings: &mut Vec<String>,
+) {
+    if measured.iter().any(|m| m.kind == MeasuredKind::Ic50) {
+        warnings.push(IC50_NOTE.to_string());
+    }
+    let low: Vec<String> = legs
+        .iter()
+        .filter(|l| l.min_adjacent_overlap.is_some_and(|o| o < MIN_OVERLAP))
+        .map(|l| format!("{}/{}/r{}", l.subject, l.leg, l.replica))
+        .collect();
+    if !low.is_empty() {
+        warnings.push(format!(
+            "adjacent-window overlap below {MIN_OVERLAP} in {}: add windows where the overlap is low",
+            low.join(", ")
+        ));
+    }
+    if !missing.is_empty() {
+        warnings.push(format!(
+            "{} leg replica(s) are not finished; results cover finished work only",
+            missing.len()
+        ));
+    }
+}

@@ -1,0 +1,197 @@
+//! The campaign pipeline: every leg replica whose windows are all done is read
+//! (by [`crate::collect::gather`]), estimated, turned into a [`LegReplica`] and
+//! handed to [`assemble`]; every other one is listed as missing.
+
+use super::assemble::{assemble, AssembleError};
+use super::info::CampaignInfo;
+use super::results::{LegReplica, MissingWork, Results};
+use crate::campaign::Campaign;
+use crate::collect::cache::ParseCache;
+use crate::collect::experiment::{read_measured, ExperimentError};
+use crate::collect::gather::{read_window_set, ReadCounts};
+use crate::collect::ReadError;
+use crate::estimate::{estimate_leg, EstimateError, EstimateOptions};
+use crate::plan::{Plan, TaskIndex, WindowSet};
+use rayon::prelude::*;
+use std::path::PathBuf;
+use std::sync::atomic::{AtomicUsize, Ordering};
+use std::sync::Mutex;
+
+/// Why a campaign could not be analysed.
+#[derive(Debug, thiserror::Error)]
+pub enum AnalysisError {
+    /// The campaign has no per-window stage with an `output:` to analyse.
+    #[error("{0}")]
+    NoOutput(String),
+    /// A finished window could not be read.
+    #[error("{what}: {source}")]
+    Read {
+        /// which leg replica
+        what: String,
+        /// the reader's error
+        source: ReadError,
+    },
+    /// A leg could not be estimated.
+    #[error("{what}: {source}")]
+    Estimate {
+        /// which leg replica
+        what: String,
+        /// the estimator's error
+        source: EstimateError,
+    },
+    /// The headline estimator gave no value for a leg.
+    #[error("{what}: the headline estimator {method} gave no estimate; see the warnings of `legwork estimate` on its windows")]
+    NoHeadline {
+        /// which leg replica
+        what: String,
+        /// the headline estimator's name
+        method: String,
+    },
+    /// The measured affinities could not be read.
+    #[error(transparent)]
+    Experiment(#[from] ExperimentError),
+    /// Cycles or network could not be assembled.
+    #[error(transparent)]
+    Assemble(#[from] AssembleError),
+}
+
+/// What an analysis did, besides its results.
+#[derive(Debug, Clone, Default, PartialEq, Eq)]
+pub struct Counts {
+    /// Leg replicas estimated.
+    pub legs: usize,
+    /// Leg replicas not finished.
+    pub missing: usize,
+    /// Window files parsed from text.
+    pub parsed: usize,
+    /// Window files taken from the parse cache.
+    pub cached: usize,
+}
+
+/// Analyses every finished leg replica of `campaign` (`done(i)`: task i is
+/// done) into results. `progress` is called after each leg replica with
+/// (finished, total).
+///
+/// # Errors
+///
+/// No stage to analyse, a finished window that cannot be read, a leg that
+/// cannot be estimated, an unreadable experiment file, or cycles and network
+/// that cannot be assembled.
+pub fn analyse_campaign(
+    campaign: &Campaign,
+    plan: &Plan,
+    done: &(dyn Fn(TaskIndex) -> bool + Sync),
+    progress: &(dyn Fn(usize, usize) + Sync),
+) -> Result<(Results, Counts), AnalysisError> {
+    let output = analysed_output(campaign)?;
+    let (ready, waiting): (Vec<&WindowSet>, Vec<&WindowSet>) = plan
+        .windows
+        .iter()
+        .partition(|set| set.tasks.iter().all(|&t| done(t)));
+    let missing: Vec<MissingWork> = waiting.iter().map(|set| missing_work(set, done)).collect();
+    let cache = ParseCache::new(&campaign.root.join(".legwork"), &campaign.reader);
+    let opts = EstimateOptions::from_analysis(&campaign.analysis);
+    let read = Mutex::new(ReadCounts::default());
+    let finished = AtomicUsize::new(0);
+    let legs: Vec<LegReplica> = ready
+        .par_iter()
+        .map(|set| {
+            let paths: Vec<PathBuf> = set
+                .tasks
+                .iter()
+                .map(|&t| campaign.root.join(&plan.tasks[t].dir).join(&output))
+                .collect();
+            let (entry, counts) = analyse_leg_replica(campaign, set, &cache, &paths, &opts)?;
+            *read.lock().expect("no panic while counting") += counts;
+            progress(finished.fetch_add(1, Ordering::Relaxed) + 1, ready.len());
+            Ok(entry)
+        })
+        .collect::<Result<_, AnalysisError>>()?;
+    let measured = match &campaign.experiment {
+        Some(p) => read_measured(p, campaign.temperature_k, campaign.unit)?,
+        None => Vec::new(),
+    };
+    let read = read.into_inner().expect("no panic while counting");
+    let counts = Counts {
+        legs: legs.len(),
+        missing: missing.len(),
+        parsed: read.parsed,
+        cached: read.cached,
+    };
+    let info = CampaignInfo::from_campaign(campaign);
+    let results = assemble(&info, legs, measured, missing)?;
+    Ok((results, counts))
+}
+
+/// The file every window of the analysed stage writes.
+fn analysed_output(campaign: &Campaign) -> Result<PathBuf, AnalysisError> {
+    let stage = campaign.analysed_stage().ok_or_else(|| {
+        AnalysisError::NoOutput(format!(
+            "{}: campaign '{}' has no per-window stage to analyse; add one with `per: window` and `output:`",
+            campaign.file.display(),
+            campaign.name
+        ))
+    })?;
+    stage.output.clone().map(PathBuf::from).ok_or_else(|| {
+        AnalysisError::NoOutput(format!(
+            "{}: stage '{}' has no `output:`, so legwork does not know which file to read; add e.g. `output: window.tsv`",
+            campaign.file.display(),
+            stage.name
+        ))
+    })
+}
+
+/// A leg replica with unfinished windows, as the results list it.
+fn missing_work(set: &WindowSet, done: &(dyn Fn(TaskIndex) -> bool + Sync)) -> MissingWork {
+    let finished = set.tasks.iter().filter(|&&t| done(t)).count();
+    MissingWork {
+        subject: set.subject.id(),
+        leg: set.leg.clone(),
+        replica: set.replica,
+        windows_done: finished,
+        windows_total: set.tasks.len(),
+        note: format!("{} of {} windows done", finished, set.tasks.len()),
+    }
+}
+
+/// One finished leg replica: its windows read, estimated, and turned into its
+/// entry (the reader's warnings first, then the estimator's).
+fn analyse_leg_replica(
+    campaign: &Campaign,
+    set: &WindowSet,
+    cache: &ParseCache,
+    paths: &[PathBuf],
+    opts: &EstimateOptions,
+) -> Result<(LegReplica, ReadCounts), AnalysisError> {
+    let what = format!("{}/{}/r{}", set.subject.id(), set.leg, set.replica);
+    let (samples, counts) =
+        read_window_set(cache, paths).map_err(|source| AnalysisError::Read {
+            what: what.clone(),
+            source,
+        })?;
+    let est = estimate_leg(&samples, opts).map_err(|source| AnalysisError::Estimate {
+        what: what.clone(),
+        source,
+    })?;
+    let leg = campaign
+        .leg(&set.leg)
+        .expect("the plan's legs come from the campaign");
+    let headline = campaign.analysis.estimator;
+    let mut entry = LegReplica::from_estimate(
+        &set.subject.id(),
+        &set.leg,
+        set.replica,
+        f64::from(leg.sign),
+        &est,
+        headline,
+        campaign.unit,
+    )
+    .ok_or_else(|| AnalysisError::NoHeadline {
+        what,
+        method: headline.as_str().to_string(),
+    })?;
+    let mut warnings = samples.warnings;
+    warnings.append(&mut entry.warnings);
+    entry.warnings = warnings;
+    Ok((entry, counts))
+}

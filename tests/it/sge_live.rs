@@ -50,8 +50,21 @@ impl Drop for Cell {
             .arg(repo().join("tests/sge/provision.sh"))
             .arg("stop")
             .arg(&self.dir)
+            .env("PATH", real_path())
             .status();
     }
+}
+
+/// `PATH` without the recorded-output tests' fake `qsub`/`qstat`/`qacct`/`qdel`
+/// (tests/fixtures/*/bin), which those tests put first in this process's `PATH`
+/// while this one may be running beside them.
+fn real_path() -> String {
+    let fixtures = repo().join("tests/fixtures");
+    let path = std::env::var_os("PATH").unwrap_or_default();
+    let kept: Vec<PathBuf> = std::env::split_paths(&path)
+        .filter(|p| !p.starts_with(&fixtures))
+        .collect();
+    std::env::join_paths(kept).unwrap().into_string().unwrap()
 }
 
 fn campaign(path: &Path, root: &Path, kind: &str, faults: bool) {
@@ -236,6 +249,7 @@ fn the_demo_campaign_survives_failures_hangs_and_qdel_on_a_real_grid_engine() {
         .arg(repo().join("tests/sge/provision.sh"))
         .arg("start")
         .arg(&dir)
+        .env("PATH", real_path())
         .output()
         .unwrap();
     if up.status.code() == Some(77) {
@@ -251,11 +265,12 @@ fn the_demo_campaign_survives_failures_hangs_and_qdel_on_a_real_grid_engine() {
         String::from_utf8_lossy(&up.stderr)
     );
     let env = std::fs::read_to_string(dir.join("env")).unwrap();
-    let env = env
+    let mut env: Vec<(String, String)> = env
         .lines()
         .filter_map(|l| l.strip_prefix("export ")?.split_once('='))
         .map(|(k, v)| (k.to_string(), v.to_string()))
         .collect();
+    env.push(("PATH".into(), real_path()));
     let cell = Cell { dir, env };
     let root = tmp.path().join("run-sge");
     let file = tmp.path().join("sge.yaml");

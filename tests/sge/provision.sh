@@ -26,7 +26,8 @@ stop() {
   # execd first, with its jobs (-kej), then the qmaster; then make sure by pid.
   qconf -kej "$(hostname)" >/dev/null 2>&1 || true
   qconf -km >/dev/null 2>&1 || true
-  for f in "$dir/spool/execd/$(hostname)/execd.pid" "$dir/spool/qmaster/qmaster.pid"; do
+  # The execd names its spool folder by the name it resolves for itself.
+  for f in "$dir"/spool/execd/*/execd.pid "$dir/spool/qmaster/qmaster.pid"; do
     if [ -s "$f" ]; then
       pid=$(cat "$f")
       for _ in $(seq 50); do kill -0 "$pid" 2>/dev/null || break; sleep 0.1; done
@@ -56,6 +57,8 @@ root="$dir/root"
 cell=legwork
 common="$root/$cell/common"
 spool="$dir/spool"
+stop  # a cell left running in DIR by an earlier start
+rm -rf "$root" "$spool" "$dir/tmp" "$dir/setup.log"
 # Ports from the directory name's hash, in 10000-19999 (below the kernel's
 # ephemeral range and apart from tests/slurm/provision.sh's 20000-39999), moved
 # on while either one of the pair is taken.
@@ -69,8 +72,7 @@ for _ in $(seq 50); do
   fi
 done
 
-rm -rf "$root" "$spool"
-mkdir -p "$common" "$spool/qmaster" "$spool/execd"
+mkdir -p "$common" "$spool/qmaster" "$spool/execd" "$dir/tmp"
 for d in bin lib utilbin util; do ln -s "/var/lib/gridengine/$d" "$root/$d"; done
 
 # 127.0.0.1 reverse-resolves to `localhost` here while the host has another
@@ -116,7 +118,7 @@ sed -e "s|^execd_spool_dir .*|execd_spool_dir        $spool/execd|" \
     -e 's|^load_report_time .*|load_report_time       00:00:05|' \
     -e 's|^max_unheard .*|max_unheard            00:01:00|' \
     -e 's|^mailer .*|mailer                 /bin/true|' \
-    -e 's|^reporting_params .*|reporting_params       accounting=true reporting=false flush_time=00:00:00 joblog=false sharelog=00:00:00 accounting_flush_time=00:00:00|' \
+    -e 's|^reporting_params .*|reporting_params       accounting=true reporting=false flush_time=00:00:15 joblog=false sharelog=00:00:00 accounting_flush_time=00:00:00|' \
     /usr/share/gridengine/default-configuration > "$dir/configuration"
 U=/usr/lib/gridengine
 {
@@ -128,21 +130,30 @@ U=/usr/lib/gridengine
   $U/spooldefaults adminhosts "$host"
 } > "$dir/init.log" 2>&1 || { echo "!! initialising the cell failed:" >&2; cat "$dir/init.log" >&2; exit 1; }
 
+# qconf reports success on stderr: keep its words in DIR/setup.log, and show
+# them only when a step fails.
+q() {
+  "$@" >> "$dir/setup.log" 2>&1 ||
+    { echo "!! $* failed:" >&2; tail -n 20 "$dir/setup.log" >&2; stop; exit 1; }
+}
 t0=$(date +%s)
+# A client that cannot get through waits for its own timeouts: bound each try.
+answers() { timeout 10 qstat -g c >/dev/null 2>&1; }
 $U/sge_qmaster
-for _ in $(seq 100); do qstat -g c >/dev/null 2>&1 && break; sleep 0.2; done
-if ! qstat -g c >/dev/null 2>&1; then
+up=no
+while [ $(( $(date +%s) - t0 )) -lt 30 ]; do answers && { up=yes; break; }; sleep 0.2; done
+if [ "$up" = no ]; then
   echo "!! the private qmaster did not answer; its messages:" >&2
   tail -n 30 "$spool/qmaster/messages" >&2 || true
   stop; exit 1
 fi
 
 # The scheduler looks every second and dispatches at once on submission and end.
-qconf -ssconf | sed -e 's/^schedule_interval .*/schedule_interval 0:0:1/' \
+qconf -ssconf 2>> "$dir/setup.log" | sed -e 's/^schedule_interval .*/schedule_interval 0:0:1/' \
   -e 's/^flush_submit_sec .*/flush_submit_sec 1/' -e 's/^flush_finish_sec .*/flush_finish_sec 1/' \
   > "$dir/sched.conf"
-qconf -Msconf "$dir/sched.conf" >/dev/null
-qconf -as "$host" >/dev/null
+q qconf -Msconf "$dir/sched.conf"
+q qconf -as "$host"
 cat > "$dir/host.conf" <<CONF
 hostname              $host
 load_scaling          NONE
@@ -154,7 +165,7 @@ xprojects             NONE
 usage_scaling         NONE
 report_variables      NONE
 CONF
-qconf -Ae "$dir/host.conf" >/dev/null
+q qconf -Ae "$dir/host.conf"
 # More slots than the machine has cores: the test's tasks are light, and a
 # hanging one must not hold the others back. No load thresholds: a loaded test
 # machine must not put the queue in alarm state.
@@ -174,7 +185,7 @@ ckpt_list             NONE
 pe_list               NONE
 rerun                 FALSE
 slots                 8
-tmpdir                /tmp
+tmpdir                $dir/tmp
 shell                 /bin/bash
 prolog                NONE
 epilog                NONE
@@ -210,10 +221,10 @@ h_rss                 INFINITY
 s_vmem                INFINITY
 h_vmem                INFINITY
 CONF
-qconf -Aq "$dir/queue.conf" >/dev/null
+q qconf -Aq "$dir/queue.conf"
 $U/sge_execd
-for _ in $(seq 100); do
-  if qstat -f -q test.q 2>/dev/null | awk '$1 ~ /^test.q@/ && NF == 5 {ok=1} END {exit !ok}'; then
+while [ $(( $(date +%s) - t0 )) -lt 60 ]; do
+  if timeout 10 qstat -f -q test.q 2>/dev/null | awk '$1 ~ /^test.q@/ && NF == 5 {ok=1} END {exit !ok}'; then
     echo "grid engine up in $(( $(date +%s) - t0 )) s: SGE_ROOT=$SGE_ROOT SGE_CELL=$SGE_CELL SGE_QMASTER_PORT=$SGE_QMASTER_PORT"
     exit 0
   fi

@@ -13,8 +13,8 @@ setup_failed=()
 bash tests/setup/python.sh || { echo "!! python set-up failed: reference checks will be skipped loudly"; setup_failed+=(python); }
 if [ -x "$here/.venv/bin/python" ]; then export LEGWORK_PYTHON="$here/.venv/bin/python"; fi
 
-echo "== set-up: distribution packages (slurm-wlm, munge, chromium) when root"
-bash tests/setup/packages.sh || { echo "!! package set-up failed: Slurm and browser tests will be skipped loudly"; setup_failed+=(packages); }
+echo "== set-up: distribution packages (slurm-wlm, munge, gridengine, chromium) when root"
+bash tests/setup/packages.sh || { echo "!! package set-up failed: Slurm, Grid Engine and browser tests will be skipped loudly"; setup_failed+=(packages); }
 
 echo "== build and test"
 cargo build --workspace --all-targets --locked

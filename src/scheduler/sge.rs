@@ -134,7 +134,16 @@ pub fn parse_qacct(out: &str) -> Vec<(String, String, JobStatus)> {
         };
         let mut st = JobStatus::new(state);
         st.exit_code = exit;
-        if failed_code != "0" {
+        if failed_code == "100" && exit.is_some_and(|c| c > 128) {
+            // A live cell writes `failed 100 : assumedly after job` with exit
+            // status 128+n both for a task deleted with `qdel` while running and
+            // for one killed by a signal from outside (SIGKILL from the kernel's
+            // out-of-memory killer, say): the accounting cannot tell them apart.
+            st.signal = exit.map(|c| c - 128);
+            st.reason = Some(format!(
+                "qacct says \"failed {failed}\": deleted with qdel, or killed from outside the job"
+            ));
+        } else if failed_code != "0" {
             st.reason = Some(failed.clone());
         }
         let id = if task.is_empty() || task == "undefined" {
@@ -279,6 +288,33 @@ mod tests {
         assert_eq!(expand_tasks("2-5:1"), vec![2, 3, 4, 5]);
         assert_eq!(expand_tasks("1-9:4"), vec![1, 5, 9]);
         assert_eq!(expand_tasks("1,4"), vec![1, 4]);
+    }
+
+    #[test]
+    fn a_task_deleted_while_running_is_a_signal_not_an_exit_code() {
+        // Recorded from a Grid Engine 8.1.9 cell (tests/sge/provision.sh): task
+        // 1 deleted with `qdel 1 -t 1` while running, task 2 killed at h_rt.
+        let out = "==============================================================
+qname        test.q
+jobname      k.sh
+jobnumber    1
+taskid       1
+failed       100 : assumedly after job
+exit_status  137                  (Killed)
+==============================================================
+qname        test.q
+jobname      k.sh
+jobnumber    1
+taskid       2
+failed       37  : qmaster enforced h_rt, h_cpu, or h_vmem limit
+exit_status  137                  (Killed)
+";
+        let v = parse_qacct(out);
+        assert_eq!(v[0].0, "1.1");
+        assert_eq!(v[0].2.state, QueueState::Failed);
+        assert_eq!(v[0].2.signal, Some(9));
+        assert!(v[0].2.reason.as_deref().unwrap().contains("qdel"));
+        assert_eq!(v[1].2.state, QueueState::Timeout);
     }
 
     #[test]

@@ -37,5 +37,6 @@ mod resume;
 mod resume_cli;
 mod scale;
 mod sge;
+mod sge_live;
 mod slurm;
 mod stats;

@@ -14,6 +14,7 @@ pub mod collect;
 pub mod commands;
 pub mod demo;
 pub mod exit;
+pub mod fsutil;
 pub mod logging;
 pub mod plan;
 pub mod render;

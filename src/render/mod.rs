@@ -337,49 +337,28 @@ fn create_new(
     }
 }
 
-/// Writes `content` to `path` atomically: a temporary file beside it, mode 0755,
-/// then a rename. Returns the manifest entry.
+/// Replaces `path` with `content` through [`crate::fsutil`] (mode 0755) and
+/// returns the manifest entry.
 fn write_atomic(
     path: &Path,
     content: &str,
     attempt: u32,
     restart: bool,
 ) -> Result<Entry, RenderError> {
-    let io = |source| RenderError::Io {
+    let meta = crate::fsutil::write_with(path, crate::fsutil::SCRIPT_MODE, |w| {
+        w.write_all(content.as_bytes())
+    })
+    .map_err(|source| RenderError::Io {
         path: path.to_path_buf(),
         source,
-    };
-    let dir = path.parent().expect("task files have a directory");
-    std::fs::create_dir_all(dir).map_err(io)?;
-    let tmp = dir.join(format!(".{TASK_FILE}.tmp-{}", std::process::id()));
-    // Executable for its owner and readable by all (the umask may take more away).
-    let mut f = std::fs::OpenOptions::new()
-        .write(true)
-        .create(true)
-        .truncate(true)
-        .mode(0o755)
-        .open(&tmp)
-        .map_err(io)?;
-    let res = (|| {
-        f.write_all(content.as_bytes())?;
-        let meta = f.metadata()?;
-        drop(f);
-        std::fs::rename(&tmp, path)?;
-        Ok::<_, std::io::Error>(meta)
-    })();
-    match res {
-        Ok(meta) => Ok(Entry {
-            hash: manifest::hash(content.as_bytes()),
-            size: meta.len(),
-            mtime_ns: manifest::mtime_ns(&meta),
-            attempt,
-            restart,
-        }),
-        Err(e) => {
-            let _ = std::fs::remove_file(&tmp);
-            Err(io(e))
-        }
-    }
+    })?;
+    Ok(Entry {
+        hash: manifest::hash(content.as_bytes()),
+        size: meta.len(),
+        mtime_ns: manifest::mtime_ns(&meta),
+        attempt,
+        restart,
+    })
 }
 
 fn progress_bar(show: bool, len: usize, msg: &'static str) -> indicatif::ProgressBar {

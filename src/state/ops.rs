@@ -344,7 +344,7 @@ pub fn poll(
     let jobs: Vec<String> = jobs.into_iter().collect();
     let result = sched.query(&jobs)?;
     let grace = ctx.config.marker_grace_s();
-    let now = chrono::Utc::now();
+    let now = ctx.clock.now();
     let mut to_cancel = Vec::new();
     for (ti, element, attempt) in live {
         let task = &state.plan.tasks[ti];

@@ -17,7 +17,7 @@ const DRIVER: &str = "LEGWORK_CRASH_DRIVER";
 
 fn config() -> SchedulerConfig {
     SchedulerConfig {
-        kind: SchedulerKind::Slurm,
+        kind: SchedulerKind::SLURM,
         max_queued: 0,
         ..Default::default()
     }
@@ -38,6 +38,7 @@ fn driver() {
         config: &cfg,
         batch_template: None,
         hooks: &ExitCodeOnly,
+        clock: &legwork::state::SystemClock,
     };
     match mode.as_str() {
         "submit" => {

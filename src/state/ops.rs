@@ -358,8 +358,52 @@ pub fn poll(
 ) -> Result<PollSummary, StateError> {
     reconcile(state, sched)?;
     let mut summary = PollSummary::default();
-    // (task index, element id or None, attempt)
-    let mut live: Vec<(TaskIndex, Option<String>, u32)> = Vec::new();
+    let (live, jobs) = live_elements(state, &*sched);
+    if live.is_empty() {
+        return Ok(summary);
+    }
+    let result = sched.query(&jobs)?;
+    let now = ctx.clock.now();
+    let mut to_cancel = Vec::new();
+    for (ti, element, attempt) in live {
+        let task = &state.plan.tasks[ti];
+        let dir = state.task_dir(task);
+        let r = &state.data.tasks[&task.id];
+        let walltime = r.walltime_s.unwrap_or(0).max(task.resources.walltime_s);
+        let status = element.as_ref().and_then(|e| result.elements.get(e));
+        let plan = &state.plan;
+        let mut verdict = classify(status, &dir, attempt, walltime, &|| {
+            ctx.hooks.check_output(plan, ti, &dir)
+        });
+        if let Verdict::Ended(_, reason, _) = &mut verdict {
+            if ctx.config.marker_grace_s() > 0
+                && tracker::marker_may_be_late(status, &dir, attempt)
+                && wait_for_marker(state, ctx, ti, attempt, now, reason)
+            {
+                summary.awaiting_marker += 1;
+                continue;
+            }
+        }
+        if matches!(verdict, Verdict::Blocked) {
+            to_cancel.extend(element);
+        }
+        record_verdict(state, ti, attempt, verdict, &mut summary);
+    }
+    if !to_cancel.is_empty() {
+        sched.cancel(&to_cancel)?;
+    }
+    state.commit()?;
+    Ok(summary)
+}
+
+/// (task index, element id if the job is known, attempt) of every live task,
+/// and the jobs to ask the scheduler about.
+#[allow(clippy::type_complexity)]
+fn live_elements(
+    state: &CampaignState,
+    sched: &dyn Scheduler,
+) -> (Vec<(TaskIndex, Option<String>, u32)>, Vec<String>) {
+    let mut live = Vec::new();
     let mut jobs: BTreeSet<String> = BTreeSet::new();
     let mut index_of: HashMap<u64, HashMap<&str, usize>> = HashMap::new();
     for (ti, task) in state.plan.tasks.iter().enumerate() {
@@ -386,105 +430,98 @@ pub fn poll(
         };
         live.push((ti, element, r.attempt));
     }
-    drop(index_of);
-    if live.is_empty() {
-        return Ok(summary);
-    }
-    let jobs: Vec<String> = jobs.into_iter().collect();
-    let result = sched.query(&jobs)?;
+    (live, jobs.into_iter().collect())
+}
+
+/// For a verdict that rests only on a missing exit marker: true while the
+/// marker grace (`scheduler.marker_grace_seconds`, measured on `ctx.clock`)
+/// has not passed since the wait began (journalling its start the first time);
+/// once it has, adds the wait to `reason` and returns false.
+fn wait_for_marker(
+    state: &mut CampaignState,
+    ctx: &Context,
+    ti: TaskIndex,
+    attempt: u32,
+    now: chrono::DateTime<chrono::Utc>,
+    reason: &mut Option<String>,
+) -> bool {
     let grace = ctx.config.marker_grace_s();
-    let now = ctx.clock.now();
-    let mut to_cancel = Vec::new();
-    for (ti, element, attempt) in live {
-        let task = &state.plan.tasks[ti];
-        let dir = state.task_dir(task);
-        let r = &state.data.tasks[&task.id];
-        let walltime = r.walltime_s.unwrap_or(0).max(task.resources.walltime_s);
-        let status = element.as_ref().and_then(|e| result.elements.get(e));
-        let plan = &state.plan;
-        let mut verdict = classify(status, &dir, attempt, walltime, &|| {
-            ctx.hooks.check_output(plan, ti, &dir)
-        });
-        let id = task.id.clone();
-        let old = r.state;
-        if let Verdict::Ended(_, reason, _) = &mut verdict {
-            if grace > 0 && tracker::marker_may_be_late(status, &dir, attempt) {
-                let waited = r
-                    .awaiting_marker_since
-                    .as_deref()
-                    .and_then(|t| chrono::DateTime::parse_from_rfc3339(t).ok())
-                    .map(|t| (now - t.with_timezone(&chrono::Utc)).num_seconds().max(0) as u64);
-                match waited {
-                    Some(w) if w >= grace => {
-                        if let Some(why) = reason.as_mut() {
-                            why.push_str(&format!("; waited {w} s for it"));
-                        }
-                    }
-                    Some(_) => {
-                        summary.awaiting_marker += 1;
-                        continue;
-                    }
-                    None => {
-                        summary.awaiting_marker += 1;
-                        tracing::info!(
-                            "{id}: left the queue without an exit marker; waiting up to {grace} s for it (scheduler.marker_grace_seconds)"
-                        );
-                        state.record_event(Event::AwaitingMarker {
-                            task: id,
-                            attempt,
-                            since: now.to_rfc3339(),
-                        });
-                        continue;
-                    }
-                }
+    if grace == 0 {
+        return false;
+    }
+    let id = state.plan.tasks[ti].id.clone();
+    let waited = state.data.tasks[&id]
+        .awaiting_marker_since
+        .as_deref()
+        .and_then(|t| chrono::DateTime::parse_from_rfc3339(t).ok())
+        .map(|t| (now - t.with_timezone(&chrono::Utc)).num_seconds().max(0) as u64);
+    match waited {
+        Some(w) if w >= grace => {
+            if let Some(why) = reason.as_mut() {
+                why.push_str(&format!("; waited {w} s for it"));
             }
+            false
         }
-        match verdict {
-            Verdict::Live(s) => {
-                if s != old {
-                    summary.changed += 1;
-                    state.record_event(Event::Task {
-                        task: id,
-                        state: s,
-                        attempt,
-                        reason: None,
-                        kind: None,
-                        walltime_s: None,
-                    });
-                }
-            }
-            Verdict::Blocked => {
-                to_cancel.extend(element);
-                summary.blocked += 1;
-                summary.changed += 1;
-                state.record_event(Event::Task {
-                    task: id,
-                    state: TaskState::Planned,
-                    attempt: attempt.saturating_sub(1),
-                    reason: Some("waiting: a task it depends on failed".into()),
-                    kind: None,
-                    walltime_s: None,
-                });
-            }
-            Verdict::Ended(s, reason, kind) => {
-                summary.changed += 1;
-                summary.ended += 1;
-                state.record_event(Event::Task {
-                    task: id,
-                    state: s,
-                    attempt,
-                    reason,
-                    kind,
-                    walltime_s: None,
-                });
-            }
+        Some(_) => true,
+        None => {
+            tracing::info!(
+                "{id}: left the queue without an exit marker; waiting up to {grace} s for it (scheduler.marker_grace_seconds)"
+            );
+            state.record_event(Event::AwaitingMarker {
+                task: id,
+                attempt,
+                since: now.to_rfc3339(),
+            });
+            true
         }
     }
-    if !to_cancel.is_empty() {
-        sched.cancel(&to_cancel)?;
-    }
-    state.commit()?;
-    Ok(summary)
+}
+
+/// Journals what the tracker decided about task `ti` and counts it.
+fn record_verdict(
+    state: &mut CampaignState,
+    ti: TaskIndex,
+    attempt: u32,
+    verdict: Verdict,
+    summary: &mut PollSummary,
+) {
+    let id = state.plan.tasks[ti].id.clone();
+    let old = state.data.tasks[&id].state;
+    let event = match verdict {
+        Verdict::Live(s) if s == old => return,
+        Verdict::Live(s) => Event::Task {
+            task: id,
+            state: s,
+            attempt,
+            reason: None,
+            kind: None,
+            walltime_s: None,
+        },
+        Verdict::Blocked => {
+            summary.blocked += 1;
+            Event::Task {
+                task: id,
+                state: TaskState::Planned,
+                attempt: attempt.saturating_sub(1),
+                reason: Some("waiting: a task it depends on failed".into()),
+                kind: None,
+                walltime_s: None,
+            }
+        }
+        Verdict::Ended(s, reason, kind) => {
+            summary.ended += 1;
+            Event::Task {
+                task: id,
+                state: s,
+                attempt,
+                reason,
+                kind,
+                walltime_s: None,
+            }
+        }
+    };
+    summary.changed += 1;
+    state.record_event(event);
 }
 
 /// Puts failed and lost selected tasks (and cancelled ones when the selection

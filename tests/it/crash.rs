@@ -73,7 +73,7 @@ fn run_driver(mode: &str, root: &Path, fake: &Path, kill_after: Option<Duration>
     match kill_after {
         Some(t) => {
             std::thread::sleep(t);
-            unsafe { libc::kill(child.id() as i32, libc::SIGKILL) };
+            let _ = child.kill(); // SIGKILL
             let _ = child.wait();
         }
         None => assert!(child.wait().unwrap().success(), "the final {mode} failed"),

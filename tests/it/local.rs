@@ -241,7 +241,7 @@ fn read_pid(path: impl AsRef<std::path::Path>) -> i32 {
 }
 
 fn pid_alive(pid: i32) -> bool {
-    unsafe { libc::kill(pid, 0) == 0 }
+    nix::sys::signal::kill(nix::unistd::Pid::from_raw(pid), None).is_ok()
 }
 
 #[test]
@@ -308,7 +308,11 @@ echo ok > out.txt
         .trim()
         .parse()
         .unwrap();
-    unsafe { libc::kill(exec, libc::SIGKILL) };
+    nix::sys::signal::kill(
+        nix::unistd::Pid::from_raw(exec),
+        nix::sys::signal::Signal::SIGKILL,
+    )
+    .unwrap();
     wait_until("the task outlived its executor", || !pid_alive(task_pid));
     let s = settle(&mut st, sched.as_mut(), &ctx);
     assert_eq!(s.total.failed + s.total.lost, 1, "{s:?}");

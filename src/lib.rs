@@ -15,6 +15,7 @@ pub mod collect;
 pub mod commands;
 pub mod demo;
 pub mod exit;
+pub mod fsutil;
 pub mod logging;
 pub mod plan;
 pub mod render;

@@ -16,7 +16,7 @@ use super::{read_window, ReadError, ReaderConfig, WindowSamples};
 use serde::{Deserialize, Serialize};
 use sha2::{Digest, Sha256};
 use std::fs;
-use std::io::{self, BufWriter, Write};
+use std::io;
 use std::path::{Path, PathBuf};
 use std::time::UNIX_EPOCH;
 
@@ -177,17 +177,15 @@ fn store(entry: &Path, key: &Key, w: &WindowSamples) -> io::Result<()> {
         dudl_len: w.dudl.len(),
         warnings: w.warnings.clone(),
     };
-    let tmp = entry.with_extension(format!("tmp{}", std::process::id()));
-    {
-        let mut out = BufWriter::new(fs::File::create(&tmp)?);
-        serde_json::to_writer(&mut out, &header).map_err(io::Error::other)?;
+    crate::fsutil::write_with(entry, crate::fsutil::DATA_MODE, |out| {
+        serde_json::to_writer(&mut *out, &header).map_err(io::Error::other)?;
         out.write_all(b"\n")?;
         for v in w.reduced.iter().chain(&w.dudl) {
             out.write_all(&v.to_le_bytes())?;
         }
-        out.into_inner().map_err(|e| e.into_error())?;
-    }
-    fs::rename(&tmp, entry)
+        Ok(())
+    })
+    .map(drop)
 }
 
 fn invalid(what: &str) -> io::Error {

@@ -42,12 +42,12 @@ pub fn lay_out(
     dry_run: bool,
     global: &Global,
 ) -> anyhow::Result<TreeReport> {
-    let opts = RenderOptions {
-        force,
-        dry_run,
-        progress: !global.quiet && std::io::stderr().is_terminal(),
+    let opts = RenderOptions { force, dry_run };
+    let bar = Bar {
+        show: !global.quiet && std::io::stderr().is_terminal(),
+        current: std::sync::Mutex::new(None),
     };
-    let report = match render::write_tree(c, p, &opts) {
+    let report = match render::write_tree_with(c, p, &opts, &bar) {
         Ok(r) => r,
         Err(
             e @ (RenderError::Templates(_) | RenderError::Template { .. } | RenderError::Escape(_)),
@@ -91,4 +91,44 @@ pub fn lay_out(
         eprintln!("  hint: keep your edits in the template instead, or run `legwork expand --force` to overwrite them");
     }
     Ok(report)
+}
+
+/// The tree writer's progress as a bar on standard error, for phases of at
+/// least 200 tasks (shorter ones finish before a bar would be read).
+struct Bar {
+    show: bool,
+    current: std::sync::Mutex<Option<indicatif::ProgressBar>>,
+}
+
+impl render::Progress for Bar {
+    fn begin(&self, phase: &'static str, total: usize) {
+        if !self.show || total < 200 {
+            return;
+        }
+        let pb = indicatif::ProgressBar::new(total as u64);
+        pb.set_style(
+            indicatif::ProgressStyle::with_template("{msg:>9} [{bar:40}] {pos}/{len} {eta}")
+                .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar())
+                .progress_chars("=> "),
+        );
+        pb.set_message(phase);
+        *self.current.lock().unwrap_or_else(|e| e.into_inner()) = Some(pb);
+    }
+
+    fn advance(&self, n: usize) {
+        if let Some(pb) = &*self.current.lock().unwrap_or_else(|e| e.into_inner()) {
+            pb.inc(n as u64);
+        }
+    }
+
+    fn end(&self) {
+        if let Some(pb) = self
+            .current
+            .lock()
+            .unwrap_or_else(|e| e.into_inner())
+            .take()
+        {
+            pb.finish_and_clear();
+        }
+    }
 }

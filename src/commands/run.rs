@@ -76,7 +76,7 @@ fn drive(
             "{}: {} tasks on the {} scheduler; tree {}",
             campaign.name,
             state.plan().tasks.len(),
-            kind_name(kind),
+            kind.display_name(),
             campaign.root.display()
         );
     }
@@ -137,7 +137,7 @@ fn interrupted(
     args: &Args,
 ) -> anyhow::Result<anyhow::Error> {
     let file = target(args);
-    if kind == SchedulerKind::Local {
+    if kind.runs_here() {
         let r = state::cancel(
             state,
             sched,
@@ -165,15 +165,5 @@ fn target(args: &Args) -> String {
     match &args.root {
         Some(r) => format!("{} --root {}", args.file.display(), r.display()),
         None => args.file.display().to_string(),
-    }
-}
-
-fn kind_name(kind: SchedulerKind) -> &'static str {
-    match kind {
-        SchedulerKind::Local => "local",
-        SchedulerKind::Slurm => "Slurm",
-        SchedulerKind::Pbs => "PBS",
-        SchedulerKind::Sge => "Grid Engine",
-        SchedulerKind::Lsf => "LSF",
     }
 }

@@ -134,6 +134,7 @@ pub fn with_loaded<T>(
             config: &loaded.config,
             batch_template: loaded.batch_template.clone(),
             hooks: loaded.hooks.as_ref(),
+            clock: &crate::state::SystemClock,
         },
     };
     f(&mut opened)
@@ -230,7 +231,7 @@ pub fn table(s: &Summary, kind: SchedulerKind, all: bool) -> String {
     }
     if s.all_done() {
         out.push_str("every task is done\n");
-    } else if s.total.live() > 0 && kind == SchedulerKind::Local {
+    } else if s.total.live() > 0 && kind.runs_here() {
         out.push_str("the local executor runs the queued tasks in the background; `legwork watch FILE` follows them\n");
     }
     out

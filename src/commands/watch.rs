@@ -10,7 +10,7 @@ use super::status::{state_exit, table, with_campaign};
 use crate::cli::Global;
 use crate::exit::Exit;
 use crate::plan::Plan;
-use crate::scheduler::{SchedulerConfig, SchedulerKind};
+use crate::scheduler::SchedulerConfig;
 use crate::state::{self, interrupt, Selection, Summary, TaskHooks};
 use indicatif::{MultiProgress, ProgressBar, ProgressDrawTarget, ProgressStyle};
 use std::collections::HashMap;
@@ -154,7 +154,7 @@ pub fn run(args: Args, global: &Global) -> anyhow::Result<()> {
         .map_err(state_exit)?;
         bars.finish();
         if settled.interrupted {
-            if kind == SchedulerKind::Local {
+            if kind.runs_here() {
                 let r = state::cancel(
                     c.state,
                     c.sched.as_mut(),

@@ -2,7 +2,6 @@
 //! and user-edited files apart after one `stat`.
 
 use std::collections::HashMap;
-use std::io::Write;
 use std::path::{Path, PathBuf};
 
 /// One file render wrote.
@@ -108,13 +107,7 @@ impl Manifest {
                 u8::from(e.restart)
             ));
         }
-        let tmp = p.with_extension(format!("tsv.tmp-{}", std::process::id()));
-        {
-            let mut f = std::fs::File::create(&tmp)?;
-            f.write_all(out.as_bytes())?;
-            f.sync_all()?;
-        }
-        std::fs::rename(&tmp, &p)
+        crate::fsutil::write_atomic(&p, out.as_bytes())
     }
 }
 

@@ -31,8 +31,28 @@ pub struct RenderOptions {
     pub force: bool,
     /// Decide everything, write nothing.
     pub dry_run: bool,
-    /// Show a progress bar on standard error.
-    pub progress: bool,
+}
+
+/// Progress of [`write_tree_with`], reported as it goes; the command that called
+/// it owns the display (a bar, a log line, nothing). Called from several
+/// threads at once.
+pub trait Progress: Sync {
+    /// A phase (`"rendering"`, then `"writing"`) of `total` tasks begins.
+    fn begin(&self, phase: &'static str, total: usize);
+    /// `n` more tasks of the current phase are done.
+    fn advance(&self, n: usize);
+    /// The current phase is over.
+    fn end(&self);
+}
+
+/// Reports nothing.
+#[derive(Debug, Clone, Copy, Default)]
+pub struct NoProgress;
+
+impl Progress for NoProgress {
+    fn begin(&self, _: &'static str, _: usize) {}
+    fn advance(&self, _: usize) {}
+    fn end(&self) {}
 }
 
 /// What [`write_tree`] did (or, for a dry run, would do).
@@ -337,63 +357,28 @@ fn create_new(
     }
 }
 
-/// Writes `content` to `path` atomically: a temporary file beside it, mode 0755,
-/// then a rename. Returns the manifest entry.
+/// Replaces `path` with `content` through [`crate::fsutil`] (mode 0755) and
+/// returns the manifest entry.
 fn write_atomic(
     path: &Path,
     content: &str,
     attempt: u32,
     restart: bool,
 ) -> Result<Entry, RenderError> {
-    let io = |source| RenderError::Io {
+    let meta = crate::fsutil::write_with(path, crate::fsutil::SCRIPT_MODE, |w| {
+        w.write_all(content.as_bytes())
+    })
+    .map_err(|source| RenderError::Io {
         path: path.to_path_buf(),
         source,
-    };
-    let dir = path.parent().expect("task files have a directory");
-    std::fs::create_dir_all(dir).map_err(io)?;
-    let tmp = dir.join(format!(".{TASK_FILE}.tmp-{}", std::process::id()));
-    // Executable for its owner and readable by all (the umask may take more away).
-    let mut f = std::fs::OpenOptions::new()
-        .write(true)
-        .create(true)
-        .truncate(true)
-        .mode(0o755)
-        .open(&tmp)
-        .map_err(io)?;
-    let res = (|| {
-        f.write_all(content.as_bytes())?;
-        let meta = f.metadata()?;
-        drop(f);
-        std::fs::rename(&tmp, path)?;
-        Ok::<_, std::io::Error>(meta)
-    })();
-    match res {
-        Ok(meta) => Ok(Entry {
-            hash: manifest::hash(content.as_bytes()),
-            size: meta.len(),
-            mtime_ns: manifest::mtime_ns(&meta),
-            attempt,
-            restart,
-        }),
-        Err(e) => {
-            let _ = std::fs::remove_file(&tmp);
-            Err(io(e))
-        }
-    }
-}
-
-fn progress_bar(show: bool, len: usize, msg: &'static str) -> indicatif::ProgressBar {
-    if !show {
-        return indicatif::ProgressBar::hidden();
-    }
-    let pb = indicatif::ProgressBar::new(len as u64);
-    pb.set_style(
-        indicatif::ProgressStyle::with_template("{msg:>9} [{bar:40}] {pos}/{len} {eta}")
-            .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar())
-            .progress_chars("=> "),
-    );
-    pb.set_message(msg);
-    pb
+    })?;
+    Ok(Entry {
+        hash: manifest::hash(content.as_bytes()),
+        size: meta.len(),
+        mtime_ns: manifest::mtime_ns(&meta),
+        attempt,
+        restart,
+    })
 }
 
 /// Which task files are exactly as the manifest recorded them (size and mtime),
@@ -490,105 +475,64 @@ fn refuse_symlinked_dirs(root: &Path, plan: &Plan) -> Result<(), RenderError> {
     Ok(())
 }
 
-/// Renders every task of the plan into the tree under the campaign root.
-///
-/// Every template is rendered before anything is written, so a template error
-/// leaves the tree as it was.
+/// Renders every task of the plan into the tree under the campaign root,
+/// reporting no progress (see [`write_tree_with`]).
 pub fn write_tree(
     campaign: &Campaign,
     plan: &Plan,
     opts: &RenderOptions,
+) -> Result<TreeReport, RenderError> {
+    write_tree_with(campaign, plan, opts, &NoProgress)
+}
+
+/// Renders every task of the plan into the tree under the campaign root,
+/// reporting progress to `progress`.
+///
+/// Every template is rendered before anything is written, so a template error
+/// leaves the tree as it was. Steps: decide per task (in parallel), sort the
+/// decisions, write (in parallel, under the in-progress marker), record what was
+/// written in the manifest.
+pub fn write_tree_with(
+    campaign: &Campaign,
+    plan: &Plan,
+    opts: &RenderOptions,
+    progress: &dyn Progress,
 ) -> Result<TreeReport, RenderError> {
     if !campaign.root.is_absolute() {
         return Err(RenderError::Escape(campaign.root.clone()));
     }
     let tera = templates::load_tera(campaign).map_err(RenderError::Templates)?;
     refuse_symlinked_dirs(&campaign.root, plan)?;
-    let builder = ContextBuilder::for_rendering(campaign, plan);
     let mut man = Manifest::load(&campaign.root);
     let fp = fingerprint(campaign);
-    let fast = !opts.force && man.fingerprint == fp;
-    let crashed = in_progress_path(&campaign.root).exists();
+    let flags = Flags {
+        fast: !opts.force && man.fingerprint == fp,
+        force: opts.force,
+        dry_run: opts.dry_run,
+        crashed: in_progress_path(&campaign.root).exists(),
+    };
     tracing::debug!(
         tasks = plan.tasks.len(),
         manifest_entries = man.entries.len(),
-        fast,
-        crashed,
+        fast = flags.fast,
+        crashed = flags.crashed,
         "rendering the tree under {}",
         campaign.root.display()
     );
-    if crashed {
+    if flags.crashed {
         tracing::warn!(
             "a previous expand stopped while writing; files it may have half-written are replaced"
         );
     }
-    let flags = Flags {
-        fast,
-        force: opts.force,
-        dry_run: opts.dry_run,
-        crashed,
-    };
-    let render = |i, a, r| render_one(&tera, &builder, campaign, plan, i, a, r);
-
-    let unchanged = if fast {
-        unchanged_by_stat(&campaign.root, plan, &man)
-    } else {
-        vec![false; plan.tasks.len()]
-    };
-    let pb = progress_bar(
-        opts.progress && plan.tasks.len() >= 200,
-        plan.tasks.len(),
-        "rendering",
-    );
-    let indices: Vec<TaskIndex> = (0..plan.tasks.len()).collect();
-    let decisions: Vec<Decision> = indices
-        .par_chunks(256)
-        .map(|chunk| {
-            let out = chunk
-                .iter()
-                .map(|&i| {
-                    if unchanged[i] {
-                        Ok(Decision {
-                            rel: String::new(),
-                            action: Action::Unchanged,
-                            attempt: 1,
-                            restart: false,
-                        })
-                    } else {
-                        decide(campaign, plan, i, &man, flags, &render)
-                    }
-                })
-                .collect::<Result<Vec<_>, _>>();
-            pb.inc(chunk.len() as u64);
-            out
-        })
-        .collect::<Result<Vec<Vec<_>>, _>>()?
-        .into_iter()
-        .flatten()
-        .collect();
-    pb.finish_and_clear();
+    let decisions = decide_all(campaign, plan, &tera, &man, flags, progress)?;
 
     let mut report = TreeReport {
         dry_run: opts.dry_run,
+        stale: stale_files(plan, &man),
         ..Default::default()
     };
-    report.stale = stale_files(plan, &man);
-    let mut to_write: Vec<&Decision> = Vec::new();
     let mut changed = man.fingerprint != fp;
-    for d in &decisions {
-        match &d.action {
-            Action::Unchanged => report.unchanged += 1,
-            Action::Adopt(e) => {
-                report.unchanged += 1;
-                if !opts.dry_run {
-                    man.entries.insert(d.rel.clone(), e.clone());
-                    changed = true;
-                }
-            }
-            Action::Protected => report.protected.push(PathBuf::from(&d.rel)),
-            Action::Write(_) | Action::Create(_) => to_write.push(d),
-        }
-    }
+    let to_write = triage(&decisions, &mut report, &mut man, &mut changed);
     if opts.dry_run {
         report.written = to_write.len();
         return Ok(report);
@@ -602,51 +546,8 @@ pub fn write_tree(
         std::fs::create_dir_all(marker.parent().expect("has a parent")).map_err(io)?;
         std::fs::write(&marker, format!("{}\n", std::process::id())).map_err(io)?;
     }
-    let pb = progress_bar(
-        opts.progress && to_write.len() >= 200,
-        to_write.len(),
-        "writing",
-    );
-    let results: Vec<Result<Outcome, RenderError>> = to_write
-        .par_chunks(128)
-        .flat_map_iter(|chunk| {
-            let out: Vec<_> = chunk
-                .iter()
-                .map(|d| match &d.action {
-                    Action::Create(c) => create_new(&campaign.root, d, c, opts.force, crashed),
-                    Action::Write(c) => {
-                        let abs = campaign.root.join(&d.rel);
-                        write_atomic(&abs, c, d.attempt, d.restart)
-                            .map(|e| Outcome::Written(d.rel.clone(), e))
-                    }
-                    _ => unreachable!("only writes are queued"),
-                })
-                .collect();
-            pb.inc(chunk.len() as u64);
-            out
-        })
-        .collect();
-    pb.finish_and_clear();
-    let mut first_err = None;
-    for r in results {
-        match r {
-            Ok(Outcome::Written(rel, e)) => {
-                report.written += 1;
-                man.entries.insert(rel, e);
-                changed = true;
-            }
-            Ok(Outcome::Adopted(rel, e)) => {
-                report.unchanged += 1;
-                man.entries.insert(rel, e);
-                changed = true;
-            }
-            Ok(Outcome::Protected(rel)) => report.protected.push(PathBuf::from(rel)),
-            Err(e) => {
-                first_err.get_or_insert(e);
-            }
-        }
-    }
-    report.protected.sort();
+    let results = write_all(&campaign.root, &to_write, flags, progress);
+    let first_err = record_outcomes(results, &mut report, &mut man, &mut changed);
     tracing::debug!(
         written = report.written,
         unchanged = report.unchanged,
@@ -662,13 +563,146 @@ pub fn write_tree(
             source,
         })?;
     }
-    if first_err.is_none() && (changed || crashed) {
+    if first_err.is_none() && (changed || flags.crashed) {
         let _ = std::fs::remove_file(&marker);
     }
     match first_err {
         Some(e) => Err(e),
         None => Ok(report),
     }
+}
+
+/// Step 1: what to do with each task's file, in plan order (renders in
+/// parallel; with an unchanged fingerprint, files matching the manifest by
+/// `stat` are not rendered at all).
+fn decide_all(
+    campaign: &Campaign,
+    plan: &Plan,
+    tera: &tera::Tera,
+    man: &Manifest,
+    flags: Flags,
+    progress: &dyn Progress,
+) -> Result<Vec<Decision>, RenderError> {
+    let builder = ContextBuilder::for_rendering(campaign, plan);
+    let render = |i, a, r| render_one(tera, &builder, campaign, plan, i, a, r);
+    let unchanged = if flags.fast {
+        unchanged_by_stat(&campaign.root, plan, man)
+    } else {
+        vec![false; plan.tasks.len()]
+    };
+    progress.begin("rendering", plan.tasks.len());
+    let indices: Vec<TaskIndex> = (0..plan.tasks.len()).collect();
+    let decisions = indices
+        .par_chunks(256)
+        .map(|chunk| {
+            let out = chunk
+                .iter()
+                .map(|&i| {
+                    if unchanged[i] {
+                        Ok(Decision {
+                            rel: String::new(),
+                            action: Action::Unchanged,
+                            attempt: 1,
+                            restart: false,
+                        })
+                    } else {
+                        decide(campaign, plan, i, man, flags, &render)
+                    }
+                })
+                .collect::<Result<Vec<_>, _>>();
+            progress.advance(chunk.len());
+            out
+        })
+        .collect::<Result<Vec<Vec<_>>, _>>();
+    progress.end();
+    Ok(decisions?.into_iter().flatten().collect())
+}
+
+/// Step 2: counts the unchanged and protected files into `report`, records
+/// adopted files in the manifest (unless a dry run), and returns the files to
+/// write.
+fn triage<'d>(
+    decisions: &'d [Decision],
+    report: &mut TreeReport,
+    man: &mut Manifest,
+    changed: &mut bool,
+) -> Vec<&'d Decision> {
+    let mut to_write = Vec::new();
+    for d in decisions {
+        match &d.action {
+            Action::Unchanged => report.unchanged += 1,
+            Action::Adopt(e) => {
+                report.unchanged += 1;
+                if !report.dry_run {
+                    man.entries.insert(d.rel.clone(), e.clone());
+                    *changed = true;
+                }
+            }
+            Action::Protected => report.protected.push(PathBuf::from(&d.rel)),
+            Action::Write(_) | Action::Create(_) => to_write.push(d),
+        }
+    }
+    to_write
+}
+
+/// Step 3: writes the files (in parallel): new ones created in place, ours
+/// replaced through [`crate::fsutil`].
+fn write_all(
+    root: &Path,
+    to_write: &[&Decision],
+    flags: Flags,
+    progress: &dyn Progress,
+) -> Vec<Result<Outcome, RenderError>> {
+    progress.begin("writing", to_write.len());
+    let results = to_write
+        .par_chunks(128)
+        .flat_map_iter(|chunk| {
+            let out: Vec<_> = chunk
+                .iter()
+                .map(|d| match &d.action {
+                    Action::Create(c) => create_new(root, d, c, flags.force, flags.crashed),
+                    Action::Write(c) => write_atomic(&root.join(&d.rel), c, d.attempt, d.restart)
+                        .map(|e| Outcome::Written(d.rel.clone(), e)),
+                    _ => unreachable!("only writes are queued"),
+                })
+                .collect();
+            progress.advance(chunk.len());
+            out
+        })
+        .collect();
+    progress.end();
+    results
+}
+
+/// Step 4: records what was written in `report` and the manifest; returns the
+/// first error (the files written before and after it are recorded too).
+fn record_outcomes(
+    results: Vec<Result<Outcome, RenderError>>,
+    report: &mut TreeReport,
+    man: &mut Manifest,
+    changed: &mut bool,
+) -> Option<RenderError> {
+    let mut first_err = None;
+    for r in results {
+        match r {
+            Ok(Outcome::Written(rel, e)) => {
+                report.written += 1;
+                man.entries.insert(rel, e);
+                *changed = true;
+            }
+            Ok(Outcome::Adopted(rel, e)) => {
+                report.unchanged += 1;
+                man.entries.insert(rel, e);
+                *changed = true;
+            }
+            Ok(Outcome::Protected(rel)) => report.protected.push(PathBuf::from(rel)),
+            Err(e) => {
+                first_err.get_or_insert(e);
+            }
+        }
+    }
+    report.protected.sort();
+    first_err
 }
 
 /// Renders (without writing) every task's script, in parallel, so that `check`

@@ -98,26 +98,17 @@ pub fn write_all(root: &Path, r: &Results) -> Result<Written, ReportError> {
     // Every temporary file first; only when all are written are they renamed
     // into place, so a failure (disk full, a folder that cannot be made) leaves
     // the previous results untouched.
-    let mut staged: Vec<(PathBuf, PathBuf)> = Vec::with_capacity(files.len());
+    let mut staged = Vec::with_capacity(files.len());
     for (path, text) in &files {
-        match stage(path, text) {
-            Ok(tmp) => staged.push((tmp, path.clone())),
-            Err(e) => {
-                for (tmp, _) in &staged {
-                    let _ = std::fs::remove_file(tmp);
-                }
-                return Err(e);
-            }
-        }
+        // A failure drops (and so removes) the files staged before it.
+        staged.push(stage(path, text)?);
     }
     let mut written = Vec::with_capacity(staged.len());
-    for (tmp, path) in staged {
-        std::fs::rename(&tmp, &path).map_err(|source| {
-            let _ = std::fs::remove_file(&tmp);
-            ReportError::Write {
-                path: path.clone(),
-                source,
-            }
+    for st in staged {
+        let path = st.target().to_path_buf();
+        st.commit().map_err(|source| ReportError::Write {
+            path: path.clone(),
+            source,
         })?;
         written.push(path);
     }
@@ -128,19 +119,15 @@ pub fn write_all(root: &Path, r: &Results) -> Result<Written, ReportError> {
     })
 }
 
-/// Writes `text` next to `path` under a temporary name and returns that name.
-fn stage(path: &Path, text: &str) -> Result<PathBuf, ReportError> {
-    let err = |source| ReportError::Write {
+/// Writes `text` next to `path` under a temporary name ([`crate::fsutil::stage`]).
+fn stage(path: &Path, text: &str) -> Result<crate::fsutil::Staged, ReportError> {
+    crate::fsutil::stage(path, crate::fsutil::DATA_MODE, |w| {
+        w.write_all(text.as_bytes())
+    })
+    .map_err(|source| ReportError::Write {
         path: path.to_path_buf(),
         source,
-    };
-    if let Some(dir) = path.parent() {
-        std::fs::create_dir_all(dir).map_err(err)?;
-    }
-    let name = path.file_name().and_then(|n| n.to_str()).unwrap_or("out");
-    let tmp = path.with_file_name(format!(".{name}.tmp{}", std::process::id()));
-    std::fs::write(&tmp, text).map_err(err)?;
-    Ok(tmp)
+    })
 }
 
 /// Reads `<root>/results/summary.json` back.

@@ -1,23 +1,7 @@
 //! The `scheduler:` section of a campaign file.
 
+use super::SchedulerKind;
 use serde::{Deserialize, Serialize};
-
-/// Which scheduler runs the tasks.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Hash, Default, Serialize, Deserialize)]
-#[serde(rename_all = "lowercase")]
-pub enum SchedulerKind {
-    /// The built-in local executor.
-    #[default]
-    Local,
-    /// Slurm.
-    Slurm,
-    /// PBS Pro or Torque.
-    Pbs,
-    /// Sun/Son of/Univa Grid Engine.
-    Sge,
-    /// IBM Spectrum LSF.
-    Lsf,
-}
 
 /// The `scheduler:` section.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
@@ -56,29 +40,37 @@ pub struct SchedulerConfig {
     /// Seconds to wait for the exit marker of a task the scheduler no longer
     /// lists (or lists as completed) before calling it lost: on a shared
     /// filesystem a file written on the compute node can take a while to show on
-    /// the login node. Default 0 for the local executor, 120 for the others.
+    /// the login node. Default: the kind's own (0 for the local executor, 120 for
+    /// the others).
     #[serde(default)]
     pub marker_grace_seconds: Option<u64>,
     /// The folder holding the scheduler's commands (`sbatch`, `squeue`, …), for a
     /// site with several installations; default: found on `PATH`.
     #[serde(default)]
     pub commands_dir: Option<std::path::PathBuf>,
+    /// Variables added to the environment of every scheduler command (not a
+    /// campaign key: for programs that embed legwork, and for tests, which must
+    /// not change the process's own environment).
+    #[serde(skip)]
+    pub command_env: Vec<(String, String)>,
+    /// The legwork program that runs the local executor (not a campaign key);
+    /// default: `LEGWORK_EXE` when set, else the running program.
+    #[serde(skip)]
+    pub executor_exe: Option<std::path::PathBuf>,
 }
 
 impl SchedulerConfig {
     /// The wait for a late exit marker, in seconds.
     pub fn marker_grace_s(&self) -> u64 {
-        self.marker_grace_seconds.unwrap_or(match self.kind {
-            SchedulerKind::Local => 0,
-            _ => 120,
-        })
+        self.marker_grace_seconds
+            .unwrap_or(self.kind.spec().marker_grace_s)
     }
 }
 
 impl Default for SchedulerConfig {
     fn default() -> Self {
         SchedulerConfig {
-            kind: SchedulerKind::Local,
+            kind: SchedulerKind::default(),
             max_queued: default_max_queued(),
             max_attempts: default_max_attempts(),
             poll_seconds: default_poll(),
@@ -89,6 +81,8 @@ impl Default for SchedulerConfig {
             array_throttle: 0,
             marker_grace_seconds: None,
             commands_dir: None,
+            command_env: Vec::new(),
+            executor_exe: None,
         }
     }
 }

@@ -9,9 +9,9 @@
 //! their exit markers; elements that never started are run by the next executor,
 //! which any query starts again.
 
-use super::script::write_atomic;
+use super::kind::KindSpec;
 use super::{
-    Dependency, JobId, JobStatus, QueryResult, QueueState, Scheduler, SchedulerConfig,
+    write_file, Dependency, JobId, JobStatus, QueryResult, QueueState, Scheduler, SchedulerConfig,
     SchedulerError, SchedulerKind, Submission,
 };
 use fs4::fs_std::FileExt;
@@ -192,11 +192,29 @@ pub fn legwork_exe() -> PathBuf {
         .unwrap_or_else(|| PathBuf::from("legwork"))
 }
 
+/// `scheduler.kind: local`.
+pub const KIND: KindSpec = KindSpec {
+    name: "local",
+    display: "local",
+    template: include_str!("../../templates/batch/local.sh.tera"),
+    // the local executor's files are on this machine: no shared-filesystem delay.
+    marker_grace_s: 0,
+    runs_here: true,
+    build: |cx| Box::new(Local::new(cx.root, cx.config)),
+};
+
+impl SchedulerKind {
+    /// local.
+    pub const LOCAL: SchedulerKind = SchedulerKind::of(&KIND);
+}
+
 /// The local executor client.
 pub struct Local {
     root: PathBuf,
     paths: Paths,
     max_parallel: usize,
+    exe: PathBuf,
+    env: Vec<(String, String)>,
 }
 
 impl Local {
@@ -211,6 +229,8 @@ impl Local {
             root: root.to_path_buf(),
             paths: Paths::new(root),
             max_parallel,
+            exe: config.executor_exe.clone().unwrap_or_else(legwork_exe),
+            env: config.command_env.clone(),
         }
     }
 
@@ -219,7 +239,7 @@ impl Local {
         if executor_running(&self.paths) {
             return Ok(());
         }
-        let exe = legwork_exe();
+        let exe = self.exe.clone();
         let log = self.paths.base.join("executor.log");
         let logf = std::fs::OpenOptions::new()
             .create(true)
@@ -231,6 +251,7 @@ impl Local {
             .arg(&self.root)
             .arg("--max-parallel")
             .arg(self.max_parallel.to_string())
+            .envs(self.env.iter().map(|(k, v)| (k, v)))
             .stdin(std::process::Stdio::null())
             .stdout(logf.try_clone().map_err(|e| SchedulerError::io(&log, e))?)
             .stderr(logf);
@@ -239,7 +260,7 @@ impl Local {
         use std::os::unix::process::CommandExt;
         unsafe {
             cmd.pre_exec(|| {
-                libc::setsid();
+                nix::unistd::setsid()?;
                 Ok(())
             });
         }
@@ -293,7 +314,7 @@ impl Local {
         while self.paths.job(&n.to_string()).exists() {
             n += 1;
         }
-        write_atomic(&p, (n + 1).to_string().as_bytes())?;
+        write_file(&p, (n + 1).to_string().as_bytes())?;
         Ok(n.to_string())
     }
 
@@ -306,7 +327,7 @@ impl Local {
 
 impl Scheduler for Local {
     fn kind(&self) -> SchedulerKind {
-        SchedulerKind::Local
+        SchedulerKind::LOCAL
     }
 
     fn index_variable(&self) -> &'static str {
@@ -343,7 +364,7 @@ impl Scheduler for Local {
         let bytes = serde_json::to_vec_pretty(&job).expect("serialisable");
         let path = self.paths.job(&id);
         tracing::debug!(command = %format!("local submit {} -> {}", sub.script.display(), path.display()), "running");
-        write_atomic(&path, &bytes)?;
+        write_file(&path, &bytes)?;
         self.ensure_executor()?;
         Ok(id)
     }

@@ -6,14 +6,14 @@
 //! record the signal) and records them as interrupted.
 
 use super::local::{ElementState, JobStatusFile, LocalJob, Paths};
-use super::script::write_atomic;
-use super::SchedulerError;
+use super::{write_file, SchedulerError};
 use fs4::fs_std::FileExt;
+use nix::sys::signal::Signal;
 use std::collections::{BTreeMap, HashMap, HashSet};
 use std::os::unix::process::CommandExt;
 use std::path::Path;
 use std::process::{Child, Command, Stdio};
-use std::sync::atomic::{AtomicBool, Ordering};
+use std::sync::mpsc::{self, Receiver, RecvTimeoutError};
 use std::time::{Duration, Instant};
 
 /// Seconds between SIGTERM and SIGKILL at walltime, cancellation or interrupt.
@@ -21,10 +21,60 @@ const GRACE: Duration = Duration::from_secs(10);
 /// How long the executor waits with nothing to do before it exits.
 const IDLE: Duration = Duration::from_secs(2);
 
-static STOP: AtomicBool = AtomicBool::new(false);
+/// The longest the loop sleeps: new job files and cancel requests are noticed
+/// within this; an element's end wakes it at once (SIGCHLD).
+const TICK: Duration = Duration::from_millis(50);
 
-extern "C" fn on_stop(_: libc::c_int) {
-    STOP.store(true, Ordering::SeqCst);
+/// What wakes the executor's loop.
+enum Wake {
+    /// A child ended (SIGCHLD).
+    Child,
+    /// SIGINT, SIGTERM or SIGHUP: stop everything.
+    Stop,
+}
+
+/// Turns the signals the executor handles into messages on a channel, from a
+/// thread of `signal-hook`'s (the handlers themselves only write to a pipe).
+fn wake_channel() -> Result<Receiver<Wake>, SchedulerError> {
+    use signal_hook::consts::{SIGCHLD, SIGHUP, SIGINT, SIGTERM};
+    let mut signals = signal_hook::iterator::Signals::new([SIGCHLD, SIGINT, SIGTERM, SIGHUP])
+        .map_err(|e| SchedulerError::io(Path::new("signal handlers"), e))?;
+    let (tx, rx) = mpsc::channel();
+    std::thread::spawn(move || {
+        for sig in signals.forever() {
+            let wake = if sig == SIGCHLD {
+                Wake::Child
+            } else {
+                Wake::Stop
+            };
+            if tx.send(wake).is_err() {
+                return;
+            }
+        }
+    });
+    Ok(rx)
+}
+
+/// Waits up to `timeout` for a wake-up; sets `stop` when asked to stop. Every
+/// message already queued is taken (several children may have ended).
+fn wait_for_wake(rx: &Receiver<Wake>, timeout: Duration, stop: &mut bool) {
+    let mut take = |w: Wake| {
+        if matches!(w, Wake::Stop) {
+            *stop = true;
+        }
+    };
+    match rx.recv_timeout(timeout) {
+        Ok(w) => take(w),
+        Err(RecvTimeoutError::Timeout) => return,
+        Err(RecvTimeoutError::Disconnected) => {
+            // No signal thread: fall back to sleeping.
+            std::thread::sleep(timeout);
+            return;
+        }
+    }
+    while let Ok(w) = rx.try_recv() {
+        take(w);
+    }
 }
 
 struct Running {
@@ -60,20 +110,8 @@ pub fn run(root: &Path, max_parallel: usize) -> Result<(), SchedulerError> {
     if !matches!(lockf.try_lock_exclusive(), Ok(true)) {
         return Ok(());
     }
-    unsafe {
-        libc::signal(
-            libc::SIGINT,
-            on_stop as extern "C" fn(libc::c_int) as libc::sighandler_t,
-        );
-        libc::signal(
-            libc::SIGTERM,
-            on_stop as extern "C" fn(libc::c_int) as libc::sighandler_t,
-        );
-        libc::signal(
-            libc::SIGHUP,
-            on_stop as extern "C" fn(libc::c_int) as libc::sighandler_t,
-        );
-    }
+    let wake = wake_channel()?;
+    let mut stop = false;
     let mut ex = Executor {
         paths,
         slots: max_parallel.max(1),
@@ -99,7 +137,7 @@ pub fn run(root: &Path, max_parallel: usize) -> Result<(), SchedulerError> {
         }
     }
     ex.flush()?;
-    write_atomic(&ex.paths.ready(), std::process::id().to_string().as_bytes())?;
+    write_file(&ex.paths.ready(), std::process::id().to_string().as_bytes())?;
     tracing::info!(
         "local executor {} running with {} slots",
         std::process::id(),
@@ -107,8 +145,8 @@ pub fn run(root: &Path, max_parallel: usize) -> Result<(), SchedulerError> {
     );
     let mut idle_since: Option<Instant> = None;
     loop {
-        if STOP.load(Ordering::SeqCst) {
-            ex.stop_all();
+        if stop {
+            ex.stop_all(&wake);
             ex.flush()?;
             return Ok(());
         }
@@ -134,11 +172,11 @@ pub fn run(root: &Path, max_parallel: usize) -> Result<(), SchedulerError> {
                 if !matches!(lockf.try_lock_exclusive(), Ok(true)) {
                     return Ok(());
                 }
-                write_atomic(&ex.paths.ready(), std::process::id().to_string().as_bytes())?;
+                write_file(&ex.paths.ready(), std::process::id().to_string().as_bytes())?;
                 idle_since = None;
             }
         }
-        std::thread::sleep(Duration::from_millis(50));
+        wait_for_wake(&wake, TICK, &mut stop);
     }
 }
 
@@ -210,7 +248,7 @@ impl Executor {
             if let Some(r) = self.running.get_mut(&(job, idx)) {
                 r.cancelled = true;
                 if r.term_sent.is_none() {
-                    signal_group(r.child.id() as i32, libc::SIGTERM);
+                    signal_group(r.child.id() as i32, Signal::SIGTERM);
                     r.term_sent = Some(Instant::now());
                 }
             } else if let Some(st) = self.states.get_mut(&job) {
@@ -251,7 +289,7 @@ impl Executor {
         for (key, state) in ended {
             if let Some(r) = self.running.remove(&key) {
                 // Make sure nothing of the element outlives it.
-                signal_group(r.child.id() as i32, libc::SIGKILL);
+                signal_group(r.child.id() as i32, Signal::SIGKILL);
             }
             self.states.get_mut(&key.0).unwrap().insert(key.1, state);
             self.dirty.insert(key.0);
@@ -265,10 +303,10 @@ impl Executor {
                 None if r.started.elapsed() > r.walltime => {
                     tracing::info!("walltime reached for process group {pgid}");
                     r.timeout = true;
-                    signal_group(pgid, libc::SIGTERM);
+                    signal_group(pgid, Signal::SIGTERM);
                     r.term_sent = Some(Instant::now());
                 }
-                Some(t) if t.elapsed() > GRACE => signal_group(pgid, libc::SIGKILL),
+                Some(t) if t.elapsed() > GRACE => signal_group(pgid, Signal::SIGKILL),
                 _ => {}
             }
         }
@@ -355,13 +393,13 @@ impl Executor {
         Ok(())
     }
 
-    fn stop_all(&mut self) {
+    fn stop_all(&mut self, wake: &Receiver<Wake>) {
         tracing::warn!(
             "local executor interrupted: stopping {} running tasks",
             self.running.len()
         );
         for r in self.running.values_mut() {
-            signal_group(r.child.id() as i32, libc::SIGTERM);
+            signal_group(r.child.id() as i32, Signal::SIGTERM);
         }
         let t = Instant::now();
         while !self.running.is_empty() && t.elapsed() < GRACE {
@@ -377,7 +415,7 @@ impl Executor {
                     k.1,
                     ElementState::Ended {
                         code,
-                        signal: Some(libc::SIGTERM),
+                        signal: Some(Signal::SIGTERM as i32),
                         timeout: false,
                         cancelled: false,
                         interrupted: true,
@@ -385,16 +423,17 @@ impl Executor {
                 );
                 self.dirty.insert(k.0);
             }
-            std::thread::sleep(Duration::from_millis(20));
+            let mut again = false;
+            wait_for_wake(wake, Duration::from_millis(20), &mut again);
         }
         for (k, mut r) in self.running.drain() {
-            signal_group(r.child.id() as i32, libc::SIGKILL);
+            signal_group(r.child.id() as i32, Signal::SIGKILL);
             let _ = r.child.wait();
             self.states.get_mut(&k.0).unwrap().insert(
                 k.1,
                 ElementState::Ended {
                     code: None,
-                    signal: Some(libc::SIGKILL),
+                    signal: Some(Signal::SIGKILL as i32),
                     timeout: false,
                     cancelled: false,
                     interrupted: true,
@@ -408,17 +447,17 @@ impl Executor {
         for id in std::mem::take(&mut self.dirty) {
             let st = &self.states[&id];
             let bytes = serde_json::to_vec(st).expect("serialisable");
-            write_atomic(&self.paths.status_of(&id.to_string()), &bytes)?;
+            write_file(&self.paths.status_of(&id.to_string()), &bytes)?;
         }
         Ok(())
     }
 }
 
-fn signal_group(pgid: i32, sig: libc::c_int) {
+/// Sends `sig` to the process group `pgid` (an element and everything it
+/// started); a group already gone is fine.
+fn signal_group(pgid: i32, sig: Signal) {
     if pgid > 0 {
-        unsafe {
-            libc::kill(-pgid, sig);
-        }
+        let _ = nix::sys::signal::killpg(nix::unistd::Pid::from_raw(pgid), sig);
     }
 }
 
@@ -441,7 +480,7 @@ fn spawn_element(job: &LocalJob, idx: usize) -> Result<Child, SchedulerError> {
     // record, instead of running on unowned.
     unsafe {
         cmd.pre_exec(|| {
-            libc::prctl(libc::PR_SET_PDEATHSIG, libc::SIGTERM);
+            nix::sys::prctl::set_pdeathsig(Signal::SIGTERM)?;
             Ok(())
         });
     }

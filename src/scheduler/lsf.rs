@@ -3,12 +3,29 @@
 //!
 //! LSF array indices start at 1, so a batch position p is array index p + 1.
 
+use super::kind::KindSpec;
 use super::runner::{RunError, Runner};
 use super::{
     Dependency, JobId, JobStatus, QueryResult, QueueState, Scheduler, SchedulerError,
     SchedulerKind, Submission,
 };
 use std::collections::HashSet;
+
+/// `scheduler.kind: lsf`.
+pub const KIND: KindSpec = KindSpec {
+    name: "lsf",
+    display: "LSF",
+    template: include_str!("../../templates/batch/lsf.sh.tera"),
+    // a shared filesystem may show a compute node's file late.
+    marker_grace_s: 120,
+    runs_here: false,
+    build: |cx| Box::new(Lsf::new(cx.runner)),
+};
+
+impl SchedulerKind {
+    /// LSF.
+    pub const LSF: SchedulerKind = SchedulerKind::of(&KIND);
+}
 
 /// The LSF client.
 pub struct Lsf {
@@ -66,7 +83,7 @@ const FORMAT: &str = "jobid jobindex stat exit_code job_name delimiter='|'";
 
 impl Scheduler for Lsf {
     fn kind(&self) -> SchedulerKind {
-        SchedulerKind::Lsf
+        SchedulerKind::LSF
     }
 
     fn array_indices(&self, positions: &[usize]) -> Vec<usize> {

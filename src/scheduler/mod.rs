@@ -6,6 +6,7 @@
 //! external command goes through [`runner::Runner`].
 
 pub mod config;
+pub mod kind;
 pub mod local;
 pub mod local_executor;
 pub mod lsf;
@@ -16,7 +17,8 @@ pub mod sge;
 pub mod slurm;
 mod status;
 
-pub use config::{SchedulerConfig, SchedulerKind};
+pub use config::SchedulerConfig;
+pub use kind::{kind_names, KindSpec, SchedulerKind, KINDS};
 pub use status::{JobStatus, QueueState};
 
 use crate::plan::Resources;
@@ -57,6 +59,11 @@ pub enum SchedulerError {
         /// What tera said.
         detail: String,
     },
+}
+
+/// [`crate::fsutil::write_atomic`] with the scheduler's error.
+pub(crate) fn write_file(path: &Path, bytes: &[u8]) -> Result<(), SchedulerError> {
+    crate::fsutil::write_atomic(path, bytes).map_err(|e| SchedulerError::io(path, e))
 }
 
 impl SchedulerError {
@@ -168,15 +175,15 @@ pub trait Scheduler: Send {
 pub fn build(config: &SchedulerConfig, root: &Path, campaign: &str) -> Box<dyn Scheduler> {
     let runner = runner::Runner {
         program_dir: config.commands_dir.clone(),
+        env: config.command_env.clone(),
         ..runner::Runner::default()
     };
-    match config.kind {
-        SchedulerKind::Local => Box::new(local::Local::new(root, config)),
-        SchedulerKind::Slurm => Box::new(slurm::Slurm::new(runner)),
-        SchedulerKind::Pbs => Box::new(pbs::Pbs::new(runner)),
-        SchedulerKind::Sge => Box::new(sge::Sge::new(runner, campaign)),
-        SchedulerKind::Lsf => Box::new(lsf::Lsf::new(runner)),
-    }
+    (config.kind.spec().build)(kind::BuildContext {
+        config,
+        root,
+        campaign,
+        runner,
+    })
 }
 
 /// The job name of submission number `submission` of batch `batch_id` of campaign

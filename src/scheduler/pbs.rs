@@ -5,11 +5,28 @@
 //! PBS Pro arrays take a range only, so a subset of a batch is numbered densely
 //! from 1 and the batch script maps each index back to its task.
 
+use super::kind::KindSpec;
 use super::runner::{RunError, Runner};
 use super::{
     Dependency, JobId, JobStatus, QueryResult, QueueState, Scheduler, SchedulerError,
     SchedulerKind, Submission,
 };
+
+/// `scheduler.kind: pbs`.
+pub const KIND: KindSpec = KindSpec {
+    name: "pbs",
+    display: "PBS",
+    template: include_str!("../../templates/batch/pbs.sh.tera"),
+    // a shared filesystem may show a compute node's file late.
+    marker_grace_s: 120,
+    runs_here: false,
+    build: |cx| Box::new(Pbs::new(cx.runner)),
+};
+
+impl SchedulerKind {
+    /// PBS.
+    pub const PBS: SchedulerKind = SchedulerKind::of(&KIND);
+}
 
 /// The PBS client.
 pub struct Pbs {
@@ -85,7 +102,7 @@ pub fn parse_qstat_full(out: &str) -> Vec<(String, String, JobStatus)> {
 
 impl Scheduler for Pbs {
     fn kind(&self) -> SchedulerKind {
-        SchedulerKind::Pbs
+        SchedulerKind::PBS
     }
 
     fn array_indices(&self, positions: &[usize]) -> Vec<usize> {

@@ -63,6 +63,8 @@ pub struct Runner {
     pub backoff: Duration,
     /// Where the programs are (`scheduler.commands_dir`); `None`: on `PATH`.
     pub program_dir: Option<std::path::PathBuf>,
+    /// Variables added to every command's environment (on top of legwork's own).
+    pub env: Vec<(String, String)>,
 }
 
 impl Default for Runner {
@@ -72,6 +74,7 @@ impl Default for Runner {
             attempts: 4,
             backoff: Duration::from_millis(500),
             program_dir: None,
+            env: Vec::new(),
         }
     }
 }
@@ -197,14 +200,17 @@ impl Runner {
             Some(dir) => Command::new(dir.join(program)),
             None => Command::new(program),
         };
-        cmd.args(args).stdout(Stdio::piped()).stderr(Stdio::piped());
+        cmd.args(args)
+            .envs(self.env.iter().map(|(k, v)| (k, v)))
+            .stdout(Stdio::piped())
+            .stderr(Stdio::piped());
         // A command in flight dies with legwork rather than finishing behind the
         // back of the next legwork (which reconciles by job name instead).
         {
             use std::os::unix::process::CommandExt;
             unsafe {
                 cmd.pre_exec(|| {
-                    libc::prctl(libc::PR_SET_PDEATHSIG, libc::SIGKILL);
+                    nix::sys::prctl::set_pdeathsig(nix::sys::signal::Signal::SIGKILL)?;
                     Ok(())
                 });
             }
@@ -298,6 +304,7 @@ mod tests {
             attempts: 3,
             backoff: Duration::from_millis(1),
             program_dir: None,
+            env: Vec::new(),
         };
         let err = r
             .run("sh", &["-c".into(), "echo nope >&2; exit 3".into()])
@@ -326,6 +333,7 @@ mod tests {
             attempts: 4,
             backoff: Duration::from_millis(1),
             program_dir: None,
+            env: Vec::new(),
         };
         let out = r.run("sh", &["-c".into(), script]).unwrap();
         assert_eq!(out.stdout.trim(), "ok");
@@ -339,6 +347,7 @@ mod tests {
             attempts: 2,
             backoff: Duration::from_millis(1),
             program_dir: None,
+            env: Vec::new(),
         };
         let err = r.run("sleep", &["5".into()]).unwrap_err();
         assert!(

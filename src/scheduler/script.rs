@@ -1,21 +1,14 @@
-//! Batch scripts, rendered at submit time from `templates/batch/<kind>.sh.tera`
+//! Batch scripts, rendered at submit time from the kind's built-in template
 //! (or the campaign's `scheduler.batch_template`), and the task wrapper that writes
 //! the start and exit markers.
 
 use super::{hms, SchedulerError, SchedulerKind, Submission};
 use std::collections::HashMap;
-use std::io::Write;
 use std::path::{Path, PathBuf};
 
-/// The built-in batch template for a scheduler kind.
+/// The built-in batch template for a scheduler kind (declared in its file).
 pub fn builtin_template(kind: SchedulerKind) -> &'static str {
-    match kind {
-        SchedulerKind::Local => include_str!("../../templates/batch/local.sh.tera"),
-        SchedulerKind::Slurm => include_str!("../../templates/batch/slurm.sh.tera"),
-        SchedulerKind::Pbs => include_str!("../../templates/batch/pbs.sh.tera"),
-        SchedulerKind::Sge => include_str!("../../templates/batch/sge.sh.tera"),
-        SchedulerKind::Lsf => include_str!("../../templates/batch/lsf.sh.tera"),
-    }
+    kind.spec().template
 }
 
 /// The task wrapper. Arguments: task directory, attempt, job id. It writes
@@ -67,24 +60,9 @@ pub fn install_wrapper(root: &Path) -> Result<PathBuf, SchedulerError> {
     if std::fs::read_to_string(&path).ok().as_deref() == Some(WRAPPER) {
         return Ok(path);
     }
-    write_atomic(&path, WRAPPER.as_bytes())?;
+    crate::fsutil::write_atomic(&path, WRAPPER.as_bytes())
+        .map_err(|e| SchedulerError::io(&path, e))?;
     Ok(path)
-}
-
-/// Writes a file by temp + fsync + rename, creating parent folders.
-pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<(), SchedulerError> {
-    let dir = path.parent().expect("a file path");
-    std::fs::create_dir_all(dir).map_err(|e| SchedulerError::io(dir, e))?;
-    let tmp = dir.join(format!(
-        ".{}.tmp{}",
-        path.file_name().unwrap().to_string_lossy(),
-        std::process::id()
-    ));
-    let mut f = std::fs::File::create(&tmp).map_err(|e| SchedulerError::io(&tmp, e))?;
-    f.write_all(bytes)
-        .and_then(|_| f.sync_all())
-        .map_err(|e| SchedulerError::io(&tmp, e))?;
-    std::fs::rename(&tmp, path).map_err(|e| SchedulerError::io(path, e))
 }
 
 /// Comma list of array indices with runs collapsed (`0-3,7,9-10`), which every
@@ -136,7 +114,7 @@ pub fn render(
             std::fs::read_to_string(p).map_err(|e| SchedulerError::io(p, e))?,
         ),
         None => (
-            format!("built-in {kind:?} batch template"),
+            format!("built-in {} batch template", kind.name()),
             builtin_template(kind).to_string(),
         ),
     };
@@ -174,7 +152,7 @@ pub fn render(
             "walltime_s": r.walltime_s, "walltime": hms(r.walltime_s),
             "walltime_minutes": r.walltime_s.div_ceil(60).max(1),
         },
-        "scheduler": { "kind": format!("{kind:?}").to_lowercase(), "options": options },
+        "scheduler": { "kind": kind.name(), "options": options },
         "elements": sub.elements.iter().map(|e| serde_json::json!({
             "index": e.array_index, "dir": e.dir, "attempt": e.attempt, "id": e.task_id,
         })).collect::<Vec<_>>(),
@@ -182,7 +160,8 @@ pub fn render(
     });
     let ctx = tera::Context::from_value(ctx).map_err(terr)?;
     let out = tera.render("batch", &ctx).map_err(terr)?;
-    write_atomic(&sub.script, out.as_bytes())
+    crate::fsutil::write_atomic(&sub.script, out.as_bytes())
+        .map_err(|e| SchedulerError::io(&sub.script, e))
 }
 
 #[cfg(test)]

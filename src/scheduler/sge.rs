@@ -5,12 +5,29 @@
 //! Grid Engine arrays take a range only, so a subset of a batch is numbered
 //! densely from 1 and the batch script maps each index back to its task.
 
+use super::kind::KindSpec;
 use super::runner::{RunError, Runner};
 use super::{
     Dependency, JobId, JobStatus, QueryResult, QueueState, Scheduler, SchedulerError,
     SchedulerKind, Submission,
 };
 use std::collections::HashSet;
+
+/// `scheduler.kind: sge`.
+pub const KIND: KindSpec = KindSpec {
+    name: "sge",
+    display: "Grid Engine",
+    template: include_str!("../../templates/batch/sge.sh.tera"),
+    // a shared filesystem may show a compute node's file late.
+    marker_grace_s: 120,
+    runs_here: false,
+    build: |cx| Box::new(Sge::new(cx.runner, cx.campaign)),
+};
+
+impl SchedulerKind {
+    /// Grid Engine.
+    pub const SGE: SchedulerKind = SchedulerKind::of(&KIND);
+}
 
 /// The Grid Engine client.
 pub struct Sge {
@@ -158,7 +175,7 @@ pub fn parse_qacct(out: &str) -> Vec<(String, String, JobStatus)> {
 
 impl Scheduler for Sge {
     fn kind(&self) -> SchedulerKind {
-        SchedulerKind::Sge
+        SchedulerKind::SGE
     }
 
     fn array_indices(&self, positions: &[usize]) -> Vec<usize> {

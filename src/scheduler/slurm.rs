@@ -2,12 +2,29 @@
 //! `squeue` per poll for every job of the campaign, `sacct` for terminal states
 //! when accounting is enabled, `scancel`.
 
+use super::kind::KindSpec;
 use super::runner::{RunError, Runner};
 use super::{
     Dependency, JobId, JobStatus, QueryResult, QueueState, Scheduler, SchedulerError,
     SchedulerKind, Submission,
 };
 use std::collections::HashSet;
+
+/// `scheduler.kind: slurm`.
+pub const KIND: KindSpec = KindSpec {
+    name: "slurm",
+    display: "Slurm",
+    template: include_str!("../../templates/batch/slurm.sh.tera"),
+    // a shared filesystem may show a compute node's file late.
+    marker_grace_s: 120,
+    runs_here: false,
+    build: |cx| Box::new(Slurm::new(cx.runner)),
+};
+
+impl SchedulerKind {
+    /// Slurm.
+    pub const SLURM: SchedulerKind = SchedulerKind::of(&KIND);
+}
 
 /// The Slurm client.
 pub struct Slurm {
@@ -114,7 +131,7 @@ pub fn parse_sacct(out: &str) -> Vec<(String, String, JobStatus)> {
 
 impl Scheduler for Slurm {
     fn kind(&self) -> SchedulerKind {
-        SchedulerKind::Slurm
+        SchedulerKind::SLURM
     }
 
     fn index_variable(&self) -> &'static str {

@@ -2,34 +2,34 @@
 //! between polls, so they stop cleanly and record what they stopped.
 
 use std::sync::atomic::{AtomicBool, Ordering};
+use std::sync::{Arc, Once, OnceLock};
 
-static INTERRUPTED: AtomicBool = AtomicBool::new(false);
+static INTERRUPTED: OnceLock<Arc<AtomicBool>> = OnceLock::new();
+static INSTALL: Once = Once::new();
 
-extern "C" fn on_signal(_: libc::c_int) {
-    INTERRUPTED.store(true, Ordering::SeqCst);
+fn shared() -> &'static Arc<AtomicBool> {
+    INTERRUPTED.get_or_init(|| Arc::new(AtomicBool::new(false)))
 }
 
-/// Installs the handler and returns the flag.
+/// Installs the handler (once per process) and returns the flag.
 pub fn install() -> &'static AtomicBool {
-    unsafe {
-        libc::signal(
-            libc::SIGINT,
-            on_signal as extern "C" fn(libc::c_int) as libc::sighandler_t,
-        );
-        libc::signal(
-            libc::SIGTERM,
-            on_signal as extern "C" fn(libc::c_int) as libc::sighandler_t,
-        );
-    }
-    &INTERRUPTED
+    let flag = shared();
+    INSTALL.call_once(|| {
+        for sig in [signal_hook::consts::SIGINT, signal_hook::consts::SIGTERM] {
+            if let Err(e) = signal_hook::flag::register(sig, Arc::clone(flag)) {
+                tracing::warn!("cannot install the handler of signal {sig}: {e}");
+            }
+        }
+    });
+    flag
 }
 
 /// The flag (false unless [`install`] was called and a signal came).
 pub fn flag() -> &'static AtomicBool {
-    &INTERRUPTED
+    shared()
 }
 
 /// Whether a signal came.
 pub fn interrupted() -> bool {
-    INTERRUPTED.load(Ordering::SeqCst)
+    shared().load(Ordering::SeqCst)
 }

@@ -250,14 +250,9 @@ impl Journal {
             state: state.clone(),
         };
         let bytes = serde_json::to_vec(&snap).expect("serialisable");
-        crate::scheduler::script::write_atomic(&self.snapshot, &bytes).map_err(|e| match e {
-            crate::scheduler::SchedulerError::Io { path, source } => {
-                JournalError::Io { path, source }
-            }
-            other => JournalError::Io {
-                path: self.snapshot.clone(),
-                source: std::io::Error::other(other.to_string()),
-            },
+        crate::fsutil::write_atomic(&self.snapshot, &bytes).map_err(|source| JournalError::Io {
+            path: self.snapshot.clone(),
+            source,
         })?;
         self.since_snapshot = 0;
         Ok(())

@@ -71,9 +71,14 @@ pub fn hostname() -> String {
 }
 
 fn pid_alive(pid: u32) -> bool {
-    // Signal 0 checks existence; EPERM means it exists under another user.
-    let r = unsafe { libc::kill(pid as i32, 0) };
-    r == 0 || std::io::Error::last_os_error().raw_os_error() == Some(libc::EPERM)
+    // No signal checks existence; EPERM means it exists under another user.
+    let Ok(pid) = i32::try_from(pid) else {
+        return false;
+    };
+    match nix::sys::signal::kill(nix::unistd::Pid::from_raw(pid), None) {
+        Ok(()) => true,
+        Err(e) => e == nix::errno::Errno::EPERM,
+    }
 }
 
 impl CampaignLock {

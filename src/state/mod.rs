@@ -225,6 +225,25 @@ pub struct Context<'a> {
     pub batch_template: Option<PathBuf>,
     /// Output checks and re-rendering.
     pub hooks: &'a dyn TaskHooks,
+    /// What time it is (the late-marker wait); [`SystemClock`] but in tests.
+    pub clock: &'a dyn Clock,
+}
+
+/// A source of the current time, so that waits measured in wall-clock time
+/// (the late-marker grace) can be driven by a test without sleeping.
+pub trait Clock: Sync {
+    /// Now.
+    fn now(&self) -> chrono::DateTime<chrono::Utc>;
+}
+
+/// The machine's clock.
+#[derive(Debug, Clone, Copy, Default)]
+pub struct SystemClock;
+
+impl Clock for SystemClock {
+    fn now(&self) -> chrono::DateTime<chrono::Utc> {
+        chrono::Utc::now()
+    }
 }
 
 /// Snapshot after this many journal events.

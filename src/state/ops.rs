@@ -160,25 +160,7 @@ pub fn submit_ready(
     };
     let mut wrapper = None;
     for b in 0..state.plan.batches.len() {
-        let batch = &state.plan.batches[b];
-        let mut chosen: Vec<(usize, TaskIndex)> = Vec::new();
-        for (pos, &ti) in batch.tasks.iter().enumerate() {
-            let task = &state.plan.tasks[ti];
-            let st = state.state(ti);
-            if st != TaskState::Planned || !sel.matches(task, st) {
-                continue;
-            }
-            let ready = task
-                .after
-                .iter()
-                .all(|&a| state.state(a) == TaskState::Done || live_job(state, a).is_some());
-            if ready {
-                chosen.push((pos, ti));
-            }
-        }
-        if chosen.is_empty() {
-            continue;
-        }
+        let mut chosen = ready_members(state, b, sel);
         if budget < chosen.len() {
             summary.held_back += chosen.len() - budget;
             chosen.truncate(budget);
@@ -186,83 +168,11 @@ pub fn submit_ready(
         if chosen.is_empty() {
             continue;
         }
-        let positions: Vec<usize> = chosen.iter().map(|c| c.0).collect();
-        let indices = sched.array_indices(&positions);
-        // Dependencies on what is not done yet: element-wise when the scheduler
-        // can and the indices line up, else on the whole job.
-        let elementwise_batches: BTreeSet<usize> = batch
-            .after
-            .iter()
-            .filter_map(|d| match d {
-                BatchDep::Elementwise(x) => Some(*x),
-                BatchDep::All(_) => None,
-            })
-            .collect();
-        let mut ok: BTreeSet<String> = BTreeSet::new();
-        let mut corr: BTreeSet<String> = BTreeSet::new();
-        for (k, &(_, ti)) in chosen.iter().enumerate() {
-            for &a in &state.plan.tasks[ti].after {
-                if state.state(a) == TaskState::Done {
-                    continue;
-                }
-                let (job, idx) = live_job(state, a).expect("checked ready");
-                let ew = sched.elementwise_dependencies()
-                    && elementwise_batches.contains(&state.plan.tasks[a].batch)
-                    && idx == indices[k];
-                if ew {
-                    corr.insert(job);
-                } else {
-                    ok.insert(job);
-                }
-            }
-        }
-        let mut after: Vec<Dependency> = ok.iter().cloned().map(Dependency::AfterOk).collect();
-        after.extend(
-            corr.into_iter()
-                .filter(|j| !ok.contains(j))
-                .map(Dependency::AfterCorr),
-        );
-        let sub = state.data.next_submission.max(1);
-        let name = scheduler::job_name(ctx.campaign, &batch.id, sub);
-        let mut resources = batch.resources.clone();
-        let mut elements = Vec::with_capacity(chosen.len());
-        let mut journal_tasks = Vec::with_capacity(chosen.len());
-        for (k, &(_, ti)) in chosen.iter().enumerate() {
-            let task = &state.plan.tasks[ti];
-            let r = state.record(ti);
-            if let Some(w) = r.walltime_s {
-                resources.walltime_s = resources.walltime_s.max(w);
-            }
-            elements.push(Element {
-                array_index: indices[k],
-                task_id: task.id.clone(),
-                dir: state.task_dir(task),
-                attempt: r.attempt + 1,
-            });
-            journal_tasks.push(SubmittedTask {
-                task: task.id.clone(),
-                attempt: r.attempt + 1,
-                index: indices[k],
-            });
-        }
-        let batch_id = batch.id.clone();
         let wrapper_path = match &wrapper {
             Some(w) => w,
             None => wrapper.insert(script::install_wrapper(&state.root)?),
         };
-        let submission = Submission {
-            name: name.clone(),
-            batch_id: batch_id.clone(),
-            elements,
-            resources,
-            after,
-            throttle: ctx.config.array_throttle,
-            root: state.root.clone(),
-            script: state.dir.join("batches").join(format!("{name}.sh")),
-            log_dir: state.dir.join("logs"),
-        };
-        std::fs::create_dir_all(&submission.log_dir)
-            .map_err(|e| scheduler::SchedulerError::io(&submission.log_dir, e))?;
+        let (submission, intent) = build_submission(state, &*sched, ctx, b, &chosen);
         script::render(
             sched.kind(),
             ctx.batch_template.as_deref(),
@@ -271,33 +181,172 @@ pub fn submit_ready(
             &ctx.config.options,
             wrapper_path,
         )?;
-        // Intent first, fsynced: a crash from here on is resolved by job name.
-        state.record_event(Event::Intent {
-            sub,
-            batch: batch_id,
-            name,
-            tasks: journal_tasks,
-        });
-        state.commit()?;
-        match sched.submit(&submission) {
-            Ok(job) => {
-                state.record_event(Event::Submitted { sub, job });
-                state.commit()?;
-            }
-            Err(e) => {
-                state.record_event(Event::Abandoned {
-                    sub,
-                    why: e.to_string(),
-                });
-                state.commit()?;
-                return Err(e.into());
-            }
-        }
+        submit_one(state, sched, &submission, intent)?;
         summary.submissions += 1;
         summary.tasks += chosen.len();
         budget -= chosen.len();
     }
     Ok(summary)
+}
+
+/// The members of batch `b` that are planned, selected and whose dependencies
+/// are done or live: (position in the batch, task index).
+fn ready_members(
+    state: &CampaignState,
+    b: usize,
+    sel: &super::Selection,
+) -> Vec<(usize, TaskIndex)> {
+    let batch = &state.plan.batches[b];
+    let mut chosen = Vec::new();
+    for (pos, &ti) in batch.tasks.iter().enumerate() {
+        let task = &state.plan.tasks[ti];
+        let st = state.state(ti);
+        if st != TaskState::Planned || !sel.matches(task, st) {
+            continue;
+        }
+        let ready = task
+            .after
+            .iter()
+            .all(|&a| state.state(a) == TaskState::Done || live_job(state, a).is_some());
+        if ready {
+            chosen.push((pos, ti));
+        }
+    }
+    chosen
+}
+
+/// The dependencies of `chosen` (members of batch `b`, at array `indices`) on
+/// what is not done yet: element-wise when the scheduler can and the indices
+/// line up, else on the whole job.
+fn dependencies(
+    state: &CampaignState,
+    sched: &dyn Scheduler,
+    b: usize,
+    chosen: &[(usize, TaskIndex)],
+    indices: &[usize],
+) -> Vec<Dependency> {
+    let elementwise_batches: BTreeSet<usize> = state.plan.batches[b]
+        .after
+        .iter()
+        .filter_map(|d| match d {
+            BatchDep::Elementwise(x) => Some(*x),
+            BatchDep::All(_) => None,
+        })
+        .collect();
+    let mut ok: BTreeSet<String> = BTreeSet::new();
+    let mut corr: BTreeSet<String> = BTreeSet::new();
+    for (k, &(_, ti)) in chosen.iter().enumerate() {
+        for &a in &state.plan.tasks[ti].after {
+            if state.state(a) == TaskState::Done {
+                continue;
+            }
+            let (job, idx) = live_job(state, a).expect("checked ready");
+            let ew = sched.elementwise_dependencies()
+                && elementwise_batches.contains(&state.plan.tasks[a].batch)
+                && idx == indices[k];
+            if ew {
+                corr.insert(job);
+            } else {
+                ok.insert(job);
+            }
+        }
+    }
+    let mut after: Vec<Dependency> = ok.iter().cloned().map(Dependency::AfterOk).collect();
+    after.extend(
+        corr.into_iter()
+            .filter(|j| !ok.contains(j))
+            .map(Dependency::AfterCorr),
+    );
+    after
+}
+
+/// The submission of `chosen` (members of batch `b`) as the next submission
+/// number, and the journal's intent event for it.
+fn build_submission(
+    state: &CampaignState,
+    sched: &dyn Scheduler,
+    ctx: &Context,
+    b: usize,
+    chosen: &[(usize, TaskIndex)],
+) -> (Submission, Event) {
+    let batch = &state.plan.batches[b];
+    let positions: Vec<usize> = chosen.iter().map(|c| c.0).collect();
+    let indices = sched.array_indices(&positions);
+    let after = dependencies(state, sched, b, chosen, &indices);
+    let sub = state.data.next_submission.max(1);
+    let name = scheduler::job_name(ctx.campaign, &batch.id, sub);
+    let mut resources = batch.resources.clone();
+    let mut elements = Vec::with_capacity(chosen.len());
+    let mut journal_tasks = Vec::with_capacity(chosen.len());
+    for (k, &(_, ti)) in chosen.iter().enumerate() {
+        let task = &state.plan.tasks[ti];
+        let r = state.record(ti);
+        if let Some(w) = r.walltime_s {
+            resources.walltime_s = resources.walltime_s.max(w);
+        }
+        elements.push(Element {
+            array_index: indices[k],
+            task_id: task.id.clone(),
+            dir: state.task_dir(task),
+            attempt: r.attempt + 1,
+        });
+        journal_tasks.push(SubmittedTask {
+            task: task.id.clone(),
+            attempt: r.attempt + 1,
+            index: indices[k],
+        });
+    }
+    let submission = Submission {
+        name: name.clone(),
+        batch_id: batch.id.clone(),
+        elements,
+        resources,
+        after,
+        throttle: ctx.config.array_throttle,
+        root: state.root.clone(),
+        script: state.dir.join("batches").join(format!("{name}.sh")),
+        log_dir: state.dir.join("logs"),
+    };
+    let intent = Event::Intent {
+        sub,
+        batch: batch.id.clone(),
+        name,
+        tasks: journal_tasks,
+    };
+    (submission, intent)
+}
+
+/// Journals `intent` (fsynced: a crash from here on is resolved by job name),
+/// then submits, then journals the job id — or the abandonment, returning the
+/// scheduler's error.
+fn submit_one(
+    state: &mut CampaignState,
+    sched: &mut dyn Scheduler,
+    submission: &Submission,
+    intent: Event,
+) -> Result<(), StateError> {
+    let Event::Intent { sub, .. } = intent else {
+        unreachable!("build_submission makes an intent")
+    };
+    std::fs::create_dir_all(&submission.log_dir)
+        .map_err(|e| scheduler::SchedulerError::io(&submission.log_dir, e))?;
+    state.record_event(intent);
+    state.commit()?;
+    match sched.submit(submission) {
+        Ok(job) => {
+            state.record_event(Event::Submitted { sub, job });
+            state.commit()?;
+            Ok(())
+        }
+        Err(e) => {
+            state.record_event(Event::Abandoned {
+                sub,
+                why: e.to_string(),
+            });
+            state.commit()?;
+            Err(e.into())
+        }
+    }
 }
 
 /// Asks the scheduler once about every live task's job and reads the markers of
@@ -309,8 +358,52 @@ pub fn poll(
 ) -> Result<PollSummary, StateError> {
     reconcile(state, sched)?;
     let mut summary = PollSummary::default();
-    // (task index, element id or None, attempt)
-    let mut live: Vec<(TaskIndex, Option<String>, u32)> = Vec::new();
+    let (live, jobs) = live_elements(state, &*sched);
+    if live.is_empty() {
+        return Ok(summary);
+    }
+    let result = sched.query(&jobs)?;
+    let now = ctx.clock.now();
+    let mut to_cancel = Vec::new();
+    for (ti, element, attempt) in live {
+        let task = &state.plan.tasks[ti];
+        let dir = state.task_dir(task);
+        let r = &state.data.tasks[&task.id];
+        let walltime = r.walltime_s.unwrap_or(0).max(task.resources.walltime_s);
+        let status = element.as_ref().and_then(|e| result.elements.get(e));
+        let plan = &state.plan;
+        let mut verdict = classify(status, &dir, attempt, walltime, &|| {
+            ctx.hooks.check_output(plan, ti, &dir)
+        });
+        if let Verdict::Ended(_, reason, _) = &mut verdict {
+            if ctx.config.marker_grace_s() > 0
+                && tracker::marker_may_be_late(status, &dir, attempt)
+                && wait_for_marker(state, ctx, ti, attempt, now, reason)
+            {
+                summary.awaiting_marker += 1;
+                continue;
+            }
+        }
+        if matches!(verdict, Verdict::Blocked) {
+            to_cancel.extend(element);
+        }
+        record_verdict(state, ti, attempt, verdict, &mut summary);
+    }
+    if !to_cancel.is_empty() {
+        sched.cancel(&to_cancel)?;
+    }
+    state.commit()?;
+    Ok(summary)
+}
+
+/// (task index, element id if the job is known, attempt) of every live task,
+/// and the jobs to ask the scheduler about.
+#[allow(clippy::type_complexity)]
+fn live_elements(
+    state: &CampaignState,
+    sched: &dyn Scheduler,
+) -> (Vec<(TaskIndex, Option<String>, u32)>, Vec<String>) {
+    let mut live = Vec::new();
     let mut jobs: BTreeSet<String> = BTreeSet::new();
     let mut index_of: HashMap<u64, HashMap<&str, usize>> = HashMap::new();
     for (ti, task) in state.plan.tasks.iter().enumerate() {
@@ -337,105 +430,98 @@ pub fn poll(
         };
         live.push((ti, element, r.attempt));
     }
-    drop(index_of);
-    if live.is_empty() {
-        return Ok(summary);
-    }
-    let jobs: Vec<String> = jobs.into_iter().collect();
-    let result = sched.query(&jobs)?;
+    (live, jobs.into_iter().collect())
+}
+
+/// For a verdict that rests only on a missing exit marker: true while the
+/// marker grace (`scheduler.marker_grace_seconds`, measured on `ctx.clock`)
+/// has not passed since the wait began (journalling its start the first time);
+/// once it has, adds the wait to `reason` and returns false.
+fn wait_for_marker(
+    state: &mut CampaignState,
+    ctx: &Context,
+    ti: TaskIndex,
+    attempt: u32,
+    now: chrono::DateTime<chrono::Utc>,
+    reason: &mut Option<String>,
+) -> bool {
     let grace = ctx.config.marker_grace_s();
-    let now = chrono::Utc::now();
-    let mut to_cancel = Vec::new();
-    for (ti, element, attempt) in live {
-        let task = &state.plan.tasks[ti];
-        let dir = state.task_dir(task);
-        let r = &state.data.tasks[&task.id];
-        let walltime = r.walltime_s.unwrap_or(0).max(task.resources.walltime_s);
-        let status = element.as_ref().and_then(|e| result.elements.get(e));
-        let plan = &state.plan;
-        let mut verdict = classify(status, &dir, attempt, walltime, &|| {
-            ctx.hooks.check_output(plan, ti, &dir)
-        });
-        let id = task.id.clone();
-        let old = r.state;
-        if let Verdict::Ended(_, reason, _) = &mut verdict {
-            if grace > 0 && tracker::marker_may_be_late(status, &dir, attempt) {
-                let waited = r
-                    .awaiting_marker_since
-                    .as_deref()
-                    .and_then(|t| chrono::DateTime::parse_from_rfc3339(t).ok())
-                    .map(|t| (now - t.with_timezone(&chrono::Utc)).num_seconds().max(0) as u64);
-                match waited {
-                    Some(w) if w >= grace => {
-                        if let Some(why) = reason.as_mut() {
-                            why.push_str(&format!("; waited {w} s for it"));
-                        }
-                    }
-                    Some(_) => {
-                        summary.awaiting_marker += 1;
-                        continue;
-                    }
-                    None => {
-                        summary.awaiting_marker += 1;
-                        tracing::info!(
-                            "{id}: left the queue without an exit marker; waiting up to {grace} s for it (scheduler.marker_grace_seconds)"
-                        );
-                        state.record_event(Event::AwaitingMarker {
-                            task: id,
-                            attempt,
-                            since: now.to_rfc3339(),
-                        });
-                        continue;
-                    }
-                }
+    if grace == 0 {
+        return false;
+    }
+    let id = state.plan.tasks[ti].id.clone();
+    let waited = state.data.tasks[&id]
+        .awaiting_marker_since
+        .as_deref()
+        .and_then(|t| chrono::DateTime::parse_from_rfc3339(t).ok())
+        .map(|t| (now - t.with_timezone(&chrono::Utc)).num_seconds().max(0) as u64);
+    match waited {
+        Some(w) if w >= grace => {
+            if let Some(why) = reason.as_mut() {
+                why.push_str(&format!("; waited {w} s for it"));
             }
+            false
         }
-        match verdict {
-            Verdict::Live(s) => {
-                if s != old {
-                    summary.changed += 1;
-                    state.record_event(Event::Task {
-                        task: id,
-                        state: s,
-                        attempt,
-                        reason: None,
-                        kind: None,
-                        walltime_s: None,
-                    });
-                }
-            }
-            Verdict::Blocked => {
-                to_cancel.extend(element);
-                summary.blocked += 1;
-                summary.changed += 1;
-                state.record_event(Event::Task {
-                    task: id,
-                    state: TaskState::Planned,
-                    attempt: attempt.saturating_sub(1),
-                    reason: Some("waiting: a task it depends on failed".into()),
-                    kind: None,
-                    walltime_s: None,
-                });
-            }
-            Verdict::Ended(s, reason, kind) => {
-                summary.changed += 1;
-                summary.ended += 1;
-                state.record_event(Event::Task {
-                    task: id,
-                    state: s,
-                    attempt,
-                    reason,
-                    kind,
-                    walltime_s: None,
-                });
-            }
+        Some(_) => true,
+        None => {
+            tracing::info!(
+                "{id}: left the queue without an exit marker; waiting up to {grace} s for it (scheduler.marker_grace_seconds)"
+            );
+            state.record_event(Event::AwaitingMarker {
+                task: id,
+                attempt,
+                since: now.to_rfc3339(),
+            });
+            true
         }
     }
-    if !to_cancel.is_empty() {
-        sched.cancel(&to_cancel)?;
-    }
-    state.commit()?;
-    Ok(summary)
+}
+
+/// Journals what the tracker decided about task `ti` and counts it.
+fn record_verdict(
+    state: &mut CampaignState,
+    ti: TaskIndex,
+    attempt: u32,
+    verdict: Verdict,
+    summary: &mut PollSummary,
+) {
+    let id = state.plan.tasks[ti].id.clone();
+    let old = state.data.tasks[&id].state;
+    let event = match verdict {
+        Verdict::Live(s) if s == old => return,
+        Verdict::Live(s) => Event::Task {
+            task: id,
+            state: s,
+            attempt,
+            reason: None,
+            kind: None,
+            walltime_s: None,
+        },
+        Verdict::Blocked => {
+            summary.blocked += 1;
+            Event::Task {
+                task: id,
+                state: TaskState::Planned,
+                attempt: attempt.saturating_sub(1),
+                reason: Some("waiting: a task it depends on failed".into()),
+                kind: None,
+                walltime_s: None,
+            }
+        }
+        Verdict::Ended(s, reason, kind) => {
+            summary.ended += 1;
+            Event::Task {
+                task: id,
+                state: s,
+                attempt,
+                reason,
+                kind,
+                walltime_s: None,
+            }
+        }
+    };
+    summary.changed += 1;
+    state.record_event(event);
 }
 
 /// Puts failed and lost selected tasks (and cancelled ones when the selection

@@ -17,7 +17,7 @@ const DRIVER: &str = "LEGWORK_CRASH_DRIVER";
 
 fn config() -> SchedulerConfig {
     SchedulerConfig {
-        kind: SchedulerKind::Slurm,
+        kind: SchedulerKind::SLURM,
         max_queued: 0,
         ..Default::default()
     }
@@ -38,6 +38,7 @@ fn driver() {
         config: &cfg,
         batch_template: None,
         hooks: &ExitCodeOnly,
+        clock: &legwork::state::SystemClock,
     };
     match mode.as_str() {
         "submit" => {
@@ -72,7 +73,7 @@ fn run_driver(mode: &str, root: &Path, fake: &Path, kill_after: Option<Duration>
     match kill_after {
         Some(t) => {
             std::thread::sleep(t);
-            unsafe { libc::kill(child.id() as i32, libc::SIGKILL) };
+            let _ = child.kill(); // SIGKILL
             let _ = child.wait();
         }
         None => assert!(child.wait().unwrap().success(), "the final {mode} failed"),

@@ -50,7 +50,6 @@ fn write(c: &Campaign, force: bool) -> render::TreeReport {
         &RenderOptions {
             force,
             dry_run: false,
-            progress: false,
         },
     )
     .unwrap()

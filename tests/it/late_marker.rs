@@ -3,13 +3,33 @@
 //! marker written on a compute node can take a while to show on the login node.
 //! A marker that arrives in time makes the task done, the wait survives
 //! reopening the state, and with no grace (the local executor's default) the
-//! verdict is immediate.
+//! verdict is immediate. Time is a fake clock the test moves forward.
 
 use crate::scheduler_support::{exit_code_context, plan, Stub};
 use legwork::scheduler::{SchedulerConfig, SchedulerKind};
-use legwork::state::{self, CampaignState, Selection, TaskState};
+use legwork::state::{self, CampaignState, Clock, Context, Selection, TaskState};
 use std::path::Path;
+use std::sync::Mutex;
 use std::time::Duration;
+
+/// A clock that stands still until the test moves it.
+struct FakeClock(Mutex<chrono::DateTime<chrono::Utc>>);
+
+impl FakeClock {
+    fn new() -> Self {
+        FakeClock(Mutex::new(chrono::Utc::now()))
+    }
+    fn advance(&self, d: Duration) {
+        let mut t = self.0.lock().unwrap();
+        *t += chrono::Duration::from_std(d).unwrap();
+    }
+}
+
+impl Clock for FakeClock {
+    fn now(&self) -> chrono::DateTime<chrono::Utc> {
+        *self.0.lock().unwrap()
+    }
+}
 
 fn write_exit_marker(dir: &Path, attempt: u32, code: i32) {
     std::fs::create_dir_all(dir).unwrap();
@@ -44,11 +64,15 @@ fn submitted_then_gone(dir: &Path, ctx: &legwork::state::Context) -> (CampaignSt
 fn a_task_gone_from_the_queue_waits_for_its_marker_before_it_is_lost() {
     let d = tempfile::tempdir().unwrap();
     let cfg = SchedulerConfig {
-        kind: SchedulerKind::Slurm,
-        marker_grace_seconds: Some(2),
+        kind: SchedulerKind::SLURM,
+        marker_grace_seconds: Some(120),
         ..Default::default()
     };
-    let ctx = exit_code_context(&cfg);
+    let clock = FakeClock::new();
+    let ctx = Context {
+        clock: &clock,
+        ..exit_code_context(&cfg)
+    };
     // Every element leaves the queue; none has an exit marker yet.
     let (mut st, mut stub) = submitted_then_gone(d.path(), &ctx);
     let n = st.plan().tasks.len();
@@ -56,12 +80,14 @@ fn a_task_gone_from_the_queue_waits_for_its_marker_before_it_is_lost() {
     assert_eq!(p.awaiting_marker, n);
     assert_eq!(p.ended, 0);
     assert!(states(&st).iter().all(|s| s.is_live()), "{:?}", states(&st));
+    // Still waiting just before the grace is over.
+    clock.advance(Duration::from_secs(119));
     let p = state::poll(&mut st, &mut stub, &ctx).unwrap();
     assert_eq!((p.awaiting_marker, p.ended), (n, 0));
     // `status` says so rather than leaving them as plain "running".
     let summary = st.summary();
     assert_eq!(summary.awaiting_marker.len(), n);
-    let shown = legwork::commands::status::table(&summary, SchedulerKind::Slurm, false);
+    let shown = legwork::commands::status::table(&summary, SchedulerKind::SLURM, false);
     assert!(
         shown.contains(&format!(
             "{n} tasks left the queue without an exit marker yet"
@@ -81,7 +107,7 @@ fn a_task_gone_from_the_queue_waits_for_its_marker_before_it_is_lost() {
     drop(st);
     let mut st = CampaignState::open(d.path(), plan(1, 2, 60), Duration::ZERO).unwrap();
     assert!(st.record(1).awaiting_marker_since.is_some());
-    std::thread::sleep(Duration::from_millis(2100));
+    clock.advance(Duration::from_secs(1));
     let p = state::poll(&mut st, &mut stub, &ctx).unwrap();
     assert_eq!((p.awaiting_marker, p.ended), (0, n - 1));
     assert!(st.summary().awaiting_marker.is_empty());
@@ -90,7 +116,7 @@ fn a_task_gone_from_the_queue_waits_for_its_marker_before_it_is_lost() {
         assert_eq!(r.state, TaskState::Lost, "task {i}");
         let why = r.reason.unwrap_or_default();
         assert!(
-            why.contains("waited") && why.contains("no exit marker"),
+            why.contains("waited 120 s") && why.contains("no exit marker"),
             "{why}"
         );
     }
@@ -103,7 +129,7 @@ fn without_a_grace_the_verdict_is_immediate() {
     let cfg = SchedulerConfig::default();
     assert_eq!(cfg.marker_grace_s(), 0);
     let slurm = SchedulerConfig {
-        kind: SchedulerKind::Slurm,
+        kind: SchedulerKind::SLURM,
         ..Default::default()
     };
     assert!(slurm.marker_grace_s() > 0);

@@ -8,11 +8,11 @@ use std::sync::atomic::AtomicBool;
 use std::time::Duration;
 
 fn config(max_parallel: usize) -> SchedulerConfig {
-    SchedulerConfig {
+    with_built_legwork(SchedulerConfig {
         max_parallel: Some(max_parallel),
         poll_seconds: 0.1,
         ..Default::default()
-    }
+    })
 }
 
 fn settle(
@@ -40,7 +40,6 @@ const OK: &str =
 
 #[test]
 fn a_campaign_runs_to_done_with_dependencies_and_the_concurrency_limit() {
-    use_built_legwork();
     let d = tempfile::tempdir().unwrap();
     let root = d.path();
     let plan = plan(2, 4, 60);
@@ -54,6 +53,7 @@ fn a_campaign_runs_to_done_with_dependencies_and_the_concurrency_limit() {
         config: &cfg,
         batch_template: None,
         hooks: &hooks,
+        clock: &legwork::state::SystemClock,
     };
     let s = settle(&mut st, sched.as_mut(), &ctx);
     assert!(s.all_done(), "{s:?}");
@@ -87,7 +87,6 @@ fn a_campaign_runs_to_done_with_dependencies_and_the_concurrency_limit() {
 
 #[test]
 fn failures_are_reported_with_reasons_and_resume_reruns_them() {
-    use_built_legwork();
     let d = tempfile::tempdir().unwrap();
     let root = d.path();
     let plan = plan(1, 4, 60);
@@ -107,6 +106,7 @@ echo ok > out.txt
         config: &cfg,
         batch_template: None,
         hooks: &hooks,
+        clock: &legwork::state::SystemClock,
     };
     let mut st = CampaignState::open(root, plan.clone(), Duration::ZERO).unwrap();
     let mut sched = scheduler::build(&cfg, root, "t");
@@ -140,7 +140,6 @@ echo ok > out.txt
 
 #[test]
 fn a_walltime_kill_is_named_and_resume_gives_more_time() {
-    use_built_legwork();
     let d = tempfile::tempdir().unwrap();
     let root = d.path();
     let plan = plan(1, 2, 2);
@@ -159,6 +158,7 @@ echo ok > out.txt
         config: &cfg,
         batch_template: None,
         hooks: &hooks,
+        clock: &legwork::state::SystemClock,
     };
     let mut st = CampaignState::open(root, plan.clone(), Duration::ZERO).unwrap();
     let mut sched = scheduler::build(&cfg, root, "t");
@@ -183,7 +183,6 @@ echo ok > out.txt
 
 #[test]
 fn a_failed_dependency_holds_its_windows_back_until_resume() {
-    use_built_legwork();
     let d = tempfile::tempdir().unwrap();
     let root = d.path();
     let plan = plan(1, 3, 60);
@@ -200,6 +199,7 @@ echo ok > out.txt
         config: &cfg,
         batch_template: None,
         hooks: &hooks,
+        clock: &legwork::state::SystemClock,
     };
     let mut st = CampaignState::open(root, plan.clone(), Duration::ZERO).unwrap();
     let mut sched = scheduler::build(&cfg, root, "t");
@@ -241,12 +241,11 @@ fn read_pid(path: impl AsRef<std::path::Path>) -> i32 {
 }
 
 fn pid_alive(pid: i32) -> bool {
-    unsafe { libc::kill(pid, 0) == 0 }
+    nix::sys::signal::kill(nix::unistd::Pid::from_raw(pid), None).is_ok()
 }
 
 #[test]
 fn cancel_stops_running_tasks_and_keeps_planned_ones_back() {
-    use_built_legwork();
     let d = tempfile::tempdir().unwrap();
     let root = d.path();
     let plan = plan(1, 2, 600);
@@ -258,6 +257,7 @@ fn cancel_stops_running_tasks_and_keeps_planned_ones_back() {
         config: &cfg,
         batch_template: None,
         hooks: &hooks,
+        clock: &legwork::state::SystemClock,
     };
     let mut st = CampaignState::open(root, plan.clone(), Duration::ZERO).unwrap();
     let mut sched = scheduler::build(&cfg, root, "t");
@@ -279,7 +279,6 @@ fn cancel_stops_running_tasks_and_keeps_planned_ones_back() {
 
 #[test]
 fn a_killed_executor_leaves_its_tasks_failed_or_lost_and_resume_reruns_them() {
-    use_built_legwork();
     let d = tempfile::tempdir().unwrap();
     let root = d.path();
     let plan = plan(1, 2, 600);
@@ -296,6 +295,7 @@ echo ok > out.txt
         config: &cfg,
         batch_template: None,
         hooks: &hooks,
+        clock: &legwork::state::SystemClock,
     };
     let mut st = CampaignState::open(root, plan.clone(), Duration::ZERO).unwrap();
     let mut sched = scheduler::build(&cfg, root, "t");
@@ -308,7 +308,11 @@ echo ok > out.txt
         .trim()
         .parse()
         .unwrap();
-    unsafe { libc::kill(exec, libc::SIGKILL) };
+    nix::sys::signal::kill(
+        nix::unistd::Pid::from_raw(exec),
+        nix::sys::signal::Signal::SIGKILL,
+    )
+    .unwrap();
     wait_until("the task outlived its executor", || !pid_alive(task_pid));
     let s = settle(&mut st, sched.as_mut(), &ctx);
     assert_eq!(s.total.failed + s.total.lost, 1, "{s:?}");

@@ -3,16 +3,12 @@
 //! Verified against recorded outputs only, not a live cluster.
 
 use crate::scheduler_support::*;
-use legwork::scheduler::{self, QueueState, SchedulerConfig, SchedulerKind};
+use legwork::scheduler::{self, QueueState, SchedulerKind};
 
 #[test]
 fn lsf_arrays_dependencies_states_names_and_cancel() {
     let d = tempfile::tempdir().unwrap();
-    let log = use_shims("lsf", d.path());
-    let cfg = SchedulerConfig {
-        kind: SchedulerKind::Lsf,
-        ..Default::default()
-    };
+    let (cfg, log) = with_shims(SchedulerKind::LSF, d.path());
     let mut s = scheduler::build(&cfg, d.path(), "t");
     let (sub, text) = rendered_submission(s.as_ref(), d.path(), "5000");
     // LSF indices start at 1: positions 0..3 are elements 1..4.

@@ -4,16 +4,12 @@
 //! server.
 
 use crate::scheduler_support::*;
-use legwork::scheduler::{self, QueueState, SchedulerConfig, SchedulerKind};
+use legwork::scheduler::{self, QueueState, SchedulerKind};
 
 #[test]
 fn pbs_arrays_dependencies_states_names_and_cancel() {
     let d = tempfile::tempdir().unwrap();
-    let log = use_shims("pbs", d.path());
-    let cfg = SchedulerConfig {
-        kind: SchedulerKind::Pbs,
-        ..Default::default()
-    };
+    let (cfg, log) = with_shims(SchedulerKind::PBS, d.path());
     let mut s = scheduler::build(&cfg, d.path(), "t");
     let (sub, text) = rendered_submission(s.as_ref(), d.path(), "1200[].pbs01");
     // PBS Pro arrays are ranges: a subset is renumbered 1..n.

@@ -65,7 +65,7 @@ fn slurm_commands_per_poll(edges: usize) -> Vec<String> {
     }
     let p = plan(edges, 4, 600);
     let cfg = SchedulerConfig {
-        kind: SchedulerKind::Slurm,
+        kind: SchedulerKind::SLURM,
         max_queued: 0,
         commands_dir: Some(logged.clone()),
         ..Default::default()

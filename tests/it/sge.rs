@@ -3,16 +3,12 @@
 //! Verified against recorded outputs only, not a live cell.
 
 use crate::scheduler_support::*;
-use legwork::scheduler::{self, QueueState, SchedulerConfig, SchedulerKind};
+use legwork::scheduler::{self, QueueState, SchedulerKind};
 
 #[test]
 fn sge_arrays_holds_live_and_accounted_states_names_and_cancel() {
     let d = tempfile::tempdir().unwrap();
-    let log = use_shims("sge", d.path());
-    let cfg = SchedulerConfig {
-        kind: SchedulerKind::Sge,
-        ..Default::default()
-    };
+    let (cfg, log) = with_shims(SchedulerKind::SGE, d.path());
     let mut s = scheduler::build(&cfg, d.path(), "t");
     let (sub, text) = rendered_submission(s.as_ref(), d.path(), "4000");
     assert!(text.contains("#$ -t 1-4\n"), "{text}");

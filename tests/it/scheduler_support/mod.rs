@@ -4,6 +4,7 @@
 #![allow(dead_code)]
 
 use legwork::plan::{Batch, BatchDep, Plan, Resources, Subject, Task};
+use legwork::scheduler::{SchedulerConfig, SchedulerKind};
 use legwork::state::{Context, ExitCodeOnly, TaskHooks};
 use std::path::{Path, PathBuf};
 
@@ -105,9 +106,14 @@ impl TaskHooks for OutTxt {
     }
 }
 
-/// Points the local executor at the legwork binary Cargo built for the tests.
-pub fn use_built_legwork() {
-    std::env::set_var("LEGWORK_EXE", env!("CARGO_BIN_EXE_legwork"));
+/// `cfg` with the local executor run by the legwork binary Cargo built for the
+/// tests (the test binary itself is not legwork). Passed through the config,
+/// never the process environment: the tests share one process.
+pub fn with_built_legwork(cfg: SchedulerConfig) -> SchedulerConfig {
+    SchedulerConfig {
+        executor_exe: Some(env!("CARGO_BIN_EXE_legwork").into()),
+        ..cfg
+    }
 }
 
 /// A scheduler that keeps every submitted element pending (or, with `gone`, has
@@ -143,7 +149,7 @@ impl Stub {
 
 impl legwork::scheduler::Scheduler for Stub {
     fn kind(&self) -> legwork::scheduler::SchedulerKind {
-        legwork::scheduler::SchedulerKind::Slurm
+        legwork::scheduler::SchedulerKind::SLURM
     }
     fn index_variable(&self) -> &'static str {
         "STUB_INDEX"
@@ -193,20 +199,23 @@ impl legwork::scheduler::Scheduler for Stub {
     }
 }
 
-/// For the recorded-output tests: puts `tests/fixtures/<kind>/bin` first on
-/// PATH and returns the call log the shims write.
-pub fn use_shims(kind: &str, dir: &Path) -> PathBuf {
+/// For the recorded-output tests: the scheduler `kind` with its commands taken
+/// from `tests/fixtures/<kind>/bin` (`scheduler.commands_dir`) and the shims'
+/// call log under `dir` passed in their environment (`SHIM_LOG`), and that log's
+/// path. Nothing changes the process environment: the tests share one process.
+pub fn with_shims(kind: SchedulerKind, dir: &Path) -> (SchedulerConfig, PathBuf) {
     let bin = Path::new(env!("CARGO_MANIFEST_DIR"))
         .join("tests/fixtures")
-        .join(kind)
+        .join(kind.name())
         .join("bin");
-    std::env::set_var(
-        "PATH",
-        format!("{}:{}", bin.display(), std::env::var("PATH").unwrap()),
-    );
     let log = dir.join("calls.log");
-    std::env::set_var("SHIM_LOG", &log);
-    log
+    let cfg = SchedulerConfig {
+        kind,
+        commands_dir: Some(bin),
+        command_env: vec![("SHIM_LOG".into(), log.display().to_string())],
+        ..Default::default()
+    };
+    (cfg, log)
 }
 
 /// Renders a four-window production submission for `kind` under `root`, waiting
@@ -268,5 +277,6 @@ pub fn exit_code_context(config: &legwork::scheduler::SchedulerConfig) -> Contex
         config,
         batch_template: None,
         hooks: &ExitCodeOnly,
+        clock: &legwork::state::SystemClock,
     }
 }

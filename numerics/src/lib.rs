@@ -16,6 +16,7 @@
 #![warn(missing_docs)]
 
 pub mod cycle;
+pub mod design;
 pub mod estimate;
 pub mod network;
 pub mod samples;

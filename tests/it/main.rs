@@ -15,6 +15,7 @@ mod campaign_new;
 mod crash;
 mod cycle;
 mod cycle_demo;
+mod design;
 mod demo_engine;
 mod demo_run;
 mod estimate_calibration;

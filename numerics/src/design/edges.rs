@@ -298,7 +298,7 @@ pub fn propose_edges(c: &Candidates, rules: &EdgeRules) -> Result<EdgeProposal, 
     let repair_edges = edges.len() - tree_len;
     if edges.len() > rules.edges {
         return Err(DesignError::Infeasible(format!(
-            "the rules need at least {} edges here (a spanning tree of {tree_len} plus {repair_edges} to repair it), more than the {} asked for; allow {} edges or more",
+            "meeting the rules took {} edges here (a spanning tree of {tree_len} plus {repair_edges} to repair it), more than the {} asked for; ask for {} edges or more",
             edges.len(),
             rules.edges,
             edges.len()

@@ -767,8 +767,15 @@ fn impossible_rules_are_reported_with_the_edges_they_need() {
     assert!(e.contains("took 6 edges"), "{e}");
 }
 
-// A tool-side check lives below: `legwork propose lambdas` on window tables.
-#[allow(dead_code)]
+// ---------------------------------------------------------------------------
+// The tool side: `legwork propose`.
+// ---------------------------------------------------------------------------
+
+fn legwork() -> assert_cmd::Command {
+    assert_cmd::Command::cargo_bin("legwork").unwrap()
+}
+
+/// The stiffness leg written as window tables (energies in kT).
 fn write_stiffness_tables(
     dir: &std::path::Path,
     r: &mut ChaCha8Rng,
@@ -787,4 +794,217 @@ fn write_stiffness_tables(
             p
         })
         .collect()
+}
+
+#[test]
+fn propose_lambdas_reads_a_pilot_and_prints_before_and_after() {
+    let d = tempfile::tempdir().unwrap();
+    let files = write_stiffness_tables(d.path(), &mut rng(190), &uniform_lambdas(11), 3000);
+    let out = legwork()
+        .args(["propose", "lambdas", "--json", "--windows", "12"])
+        .args(&files)
+        .output()
+        .unwrap();
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let doc: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    assert_eq!(doc["source"], "dudl_variance");
+    let total = doc["total_length"].as_f64().unwrap();
+    assert!(
+        (total - exact_total()).abs() < 0.15 * exact_total(),
+        "{total}"
+    );
+    let lam: Vec<f64> = serde_json::from_value(doc["proposal"]["lambdas"].clone()).unwrap();
+    assert_eq!(lam.len(), 12);
+    assert_eq!((lam[0], lam[11]), (0.0, 1.0));
+    // Denser where the stiffness changes fastest (near λ = 0), as the closed form.
+    assert!(lam[1] < 0.05 && lam[1] > 0.0, "{lam:?}");
+    let measured = doc["pilot"]["measured_adjacent_overlap"]
+        .as_array()
+        .unwrap();
+    assert_eq!(measured.len(), 10);
+    assert!(doc["caution"]
+        .as_str()
+        .unwrap()
+        .contains("not measurements"));
+    // The table says the same in words, and gives a line to paste.
+    let text = legwork()
+        .args(["propose", "lambdas"])
+        .args(&files)
+        .output()
+        .unwrap();
+    let t = String::from_utf8_lossy(&text.stdout);
+    assert!(
+        t.contains("thermodynamic length") && t.contains("lambdas: [0.0000,"),
+        "{t}"
+    );
+    assert!(t.contains("not measurements"));
+    // A bad request: exit 2 with the reason.
+    let bad = legwork()
+        .args(["propose", "lambdas", "--min-overlap", "0.7"])
+        .args(&files)
+        .output()
+        .unwrap();
+    assert_eq!(bad.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&bad.stderr).contains("between 0 and 0.5"));
+}
+
+/// An invented difficulty matrix as CSV (upper triangle only).
+fn write_scores(path: &std::path::Path, c: &Candidates, ids: &[String]) {
+    let mut s = String::from("# invented difficulties\nid");
+    for id in ids {
+        s.push(',');
+        s.push_str(id);
+    }
+    s.push('\n');
+    for a in 0..ids.len() {
+        s.push_str(&ids[a]);
+        for b in 0..ids.len() {
+            s.push(',');
+            if b > a {
+                if let Some(v) = c.get(a, b) {
+                    s.push_str(&format!("{v}"));
+                }
+            }
+        }
+        s.push('\n');
+    }
+    std::fs::write(path, s).unwrap();
+}
+
+#[test]
+fn propose_edges_writes_an_edge_csv_and_a_figure() {
+    let d = tempfile::tempdir().unwrap();
+    let n = 24;
+    let c = invented_scores(n, 1900);
+    let ids: Vec<String> = (0..n).map(|i| format!("ork-{:02}", i + 1)).collect();
+    let scores = d.path().join("scores.csv");
+    write_scores(&scores, &c, &ids);
+    let (csv, svg) = (d.path().join("edges.csv"), d.path().join("net.svg"));
+    let out = legwork()
+        .args(["propose", "edges", "--json"])
+        .arg(&scores)
+        .arg("--out")
+        .arg(&csv)
+        .arg("--figure")
+        .arg(&svg)
+        .output()
+        .unwrap();
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let doc: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    let text = std::fs::read_to_string(&csv).unwrap();
+    let mut lines = text.lines();
+    assert_eq!(lines.next(), Some("a,b"));
+    let edges: Vec<(usize, usize)> = lines
+        .map(|l| {
+            let (a, b) = l.split_once(',').unwrap();
+            let ix = |x: &str| ids.iter().position(|i| i == x).unwrap();
+            (ix(a), ix(b))
+        })
+        .collect();
+    assert_eq!(edges.len(), 36);
+    assert!(edges.iter().all(|&(a, b)| c.get(a, b).is_some()));
+    for l in 0..n {
+        assert!(on_some_cycle(n, &edges, l), "ligand {l}");
+    }
+    let with_var: Vec<_> = edges
+        .iter()
+        .map(|&(a, b)| (a, b, c.get(a, b).unwrap()))
+        .collect();
+    let sum = sum_of_variances(n, &with_var).unwrap();
+    let reported = doc["expected_sum_of_variances"].as_f64().unwrap();
+    assert!((sum - reported).abs() < 1e-9 * sum);
+    assert!(reported <= doc["baseline"]["tree_plus_random_mean"].as_f64().unwrap());
+    let fig = std::fs::read_to_string(&svg).unwrap();
+    assert!(
+        fig.starts_with("<svg") && fig.matches("<circle").count() == n,
+        "one dot per ligand"
+    );
+    // Existing outputs are not overwritten without --force.
+    let again = legwork()
+        .args(["propose", "edges"])
+        .arg(&scores)
+        .arg("--out")
+        .arg(&csv)
+        .output()
+        .unwrap();
+    assert_eq!(again.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&again.stderr).contains("--force"));
+    // A bad cell names the file, the line and the pair.
+    std::fs::write(&scores, "id,x,y,z\nx,,1,2\ny,,,oops\nz,,,\n").unwrap();
+    let bad = legwork()
+        .args(["propose", "edges"])
+        .arg(&scores)
+        .output()
+        .unwrap();
+    assert_eq!(bad.status.code(), Some(2));
+    let e = String::from_utf8_lossy(&bad.stderr);
+    assert!(
+        e.contains("scores.csv:3") && e.contains("y+z") && e.contains("hint:"),
+        "{e}"
+    );
+}
+
+#[test]
+fn propose_sampling_reads_collected_results() {
+    let d = tempfile::tempdir().unwrap();
+    let r = crate::report_fixture::results();
+    legwork::report::write_all(d.path(), &r).unwrap();
+    let out = legwork()
+        .args(["propose", "sampling", "--json", "--budget", "20000"])
+        .arg(d.path())
+        .output()
+        .unwrap();
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let doc: serde_json::Value = serde_json::from_slice(&out.stdout).unwrap();
+    let (before, after, uni) = (
+        doc["before"].as_f64().unwrap(),
+        doc["after"].as_f64().unwrap(),
+        doc["uniform"].as_f64().unwrap(),
+    );
+    assert!(after < uni && uni < before, "{before} {after} {uni}");
+    assert!((doc["spent"].as_f64().unwrap() - 20000.0).abs() < 1e-6 * 20000.0);
+    // The model starts from the reported edge σ.
+    for (e, got) in r.edges.iter().zip(doc["edges"].as_array().unwrap()) {
+        assert_eq!(got["subject"], e.subject.as_str());
+        assert!((got["sigma_before"].as_f64().unwrap() - e.sigma).abs() < 1e-9);
+    }
+    assert_eq!(doc["ligands"].as_array().unwrap().len(), 6);
+    let extra: f64 = doc["windows"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .map(|w| w["extra_frames"].as_f64().unwrap())
+        .sum();
+    let n_windows = doc["windows"].as_array().unwrap().len() as f64;
+    assert!(
+        extra >= 20000.0 - 1e-6 && extra <= 20000.0 + n_windows,
+        "{extra}"
+    );
+    // An unknown leg in --frame-cost is refused with the legs there are.
+    let bad = legwork()
+        .args([
+            "propose",
+            "sampling",
+            "--budget",
+            "10",
+            "--frame-cost",
+            "nope=1",
+        ])
+        .arg(d.path())
+        .output()
+        .unwrap();
+    assert_eq!(bad.status.code(), Some(2));
+    assert!(String::from_utf8_lossy(&bad.stderr).contains("hint: the legs are"));
 }

@@ -61,6 +61,9 @@ pub struct LambdasArgs {
     /// The smallest adjacent overlap wanted (0.03 is common practice).
     #[arg(long, default_value_t = 0.03, value_name = "O")]
     pub min_overlap: f64,
+    /// Aim at a predicted overlap of this many times --min-overlap (the prediction is optimistic for large steps).
+    #[arg(long, default_value_t = 2.0, value_name = "FACTOR")]
+    pub margin: f64,
     /// Length from: auto, dudl (variance of dU/dλ) or energy (spread of neighbour energy differences).
     #[arg(long, value_enum, default_value_t = SourceChoice::Auto)]
     pub source: SourceChoice,
@@ -229,11 +232,14 @@ fn lambdas(args: LambdasArgs) -> anyhow::Result<()> {
     let request = ScheduleRequest {
         windows: args.windows,
         min_overlap: args.min_overlap,
+        margin: args.margin,
         ..Default::default()
     };
     let proposal = propose_schedule(&profile, &request).map_err(|e| match e {
-        DesignError::Infeasible(m) => Exit::incomplete(format!("no schedule proposed: {m}")),
-        DesignError::Input(m) => Exit::bad_input(format!("--windows/--min-overlap: {m}")),
+        DesignError::Infeasible(m) => Exit::bad_input(format!(
+            "no schedule proposed: {m}\nhint: lower --min-overlap or --margin, or give --windows"
+        )),
+        DesignError::Input(m) => Exit::bad_input(format!("--windows/--min-overlap/--margin: {m}")),
     })?;
     let pilot_steps = profile.steps(&leg.lambdas);
     let mut pos = vec![0.0];
@@ -264,6 +270,7 @@ fn lambdas(args: LambdasArgs) -> anyhow::Result<()> {
                 "fewest_windows": proposal.fewest_windows,
             },
             "min_overlap": args.min_overlap,
+            "margin": args.margin,
             "caution": CAUTION,
         });
         println!("{}", serde_json::to_string_pretty(&doc)?);
@@ -327,8 +334,8 @@ fn lambdas(args: LambdasArgs) -> anyhow::Result<()> {
     if !proposal.meets_min_overlap {
         let _ = writeln!(
             s,
-            "  warning: with {k} states the smallest predicted overlap is below {}; ask for more states (--windows)",
-            args.min_overlap
+            "  warning: with {k} states the smallest predicted overlap is below {} × {}; ask for more states (--windows)",
+            args.min_overlap, args.margin
         );
     }
     let fmt = |v: &[f64]| {

@@ -258,7 +258,7 @@ pub fn propose_edges(c: &Candidates, rules: &EdgeRules) -> Result<EdgeProposal, 
     }
     let mut edges = minimum_spanning_tree(c)?;
     let tree_len = edges.len();
-    let has = |edges: &[(usize, usize)], a: usize, b: usize| edges.iter().any(|&e| e == (a, b));
+    let has = |edges: &[(usize, usize)], a: usize, b: usize| edges.contains(&(a, b));
 
     // Repair the rules, fewest violations first, then the largest trace drop.
     let mut bad = violation(n, &edges, rules);

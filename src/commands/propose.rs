@@ -28,7 +28,7 @@ use std::collections::BTreeMap;
 use std::fmt::Write as _;
 use std::path::{Path, PathBuf};
 
-const CAUTION: &str = "caution: these are predictions from a model, not measurements; run the proposal and check it (overlap, σ) before relying on it";
+const CAUTION: &str = "Caution: these are predictions from a model, not measurements; run the proposal and check it (overlap, σ) before relying on it";
 
 /// Options of `legwork propose`.
 #[derive(Debug, clap::Args)]
@@ -319,15 +319,17 @@ fn lambdas(args: LambdasArgs) -> anyhow::Result<()> {
         Some(f) => {
             let _ = writeln!(
                 s,
-                "  the fewest states predicted to clear {}: {f}",
-                args.min_overlap
+                "  the fewest states predicted to clear {} × margin {} = {:.3}: {f}",
+                args.min_overlap,
+                args.margin,
+                args.min_overlap * args.margin
             );
         }
         None => {
             let _ = writeln!(
                 s,
-                "  no number of states up to {} is predicted to clear {}",
-                request.max_windows, args.min_overlap
+                "  no number of states up to {} is predicted to clear {} × margin {}",
+                request.max_windows, args.min_overlap, args.margin
             );
         }
     }

@@ -59,6 +59,8 @@ pub enum Command {
     Report(commands::report::Args),
     /// Estimate one leg's free energy from its window tables.
     Estimate(commands::estimate::Args),
+    /// Propose λ schedules, edges or extra sampling from pilots and results (predictions).
+    Propose(commands::propose::Args),
     /// check, expand, submit, watch, collect and report in one go.
     Run(commands::run::Args),
     /// Print a shell completion script.

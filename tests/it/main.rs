@@ -18,6 +18,7 @@ mod cycle;
 mod cycle_demo;
 mod demo_engine;
 mod demo_run;
+mod design;
 mod estimate_calibration;
 mod estimate_command;
 mod estimate_demo;

@@ -9,7 +9,8 @@ use crate::cli::Global;
 use crate::collect::{read_leg_with, ReaderConfig, WindowHint};
 use crate::estimate::{estimate_leg, EstimateOptions, LegEstimate, Method};
 use crate::exit::Exit;
-use crate::report::{self, plots, Results};
+use crate::analysis::Results;
+use crate::report::{self, plots};
 use legwork_numerics::design::allocate::{
     allocate, uniform, AllocationProblem, Network, Objective, WindowVariance,
 };
@@ -962,7 +963,7 @@ fn sampling(args: SamplingArgs) -> anyhow::Result<()> {
     let mut wins = Vec::new();
     let mut notes = Vec::new();
     for (g, e) in groups.iter().enumerate() {
-        let legs: Vec<&report::LegReplica> = results
+        let legs: Vec<&crate::analysis::LegReplica> = results
             .legs
             .iter()
             .filter(|l| l.subject == e.subject)
@@ -1189,8 +1190,8 @@ fn sampling(args: SamplingArgs) -> anyhow::Result<()> {
 /// from the TI error propagation σ² = Σ c_i² SEM_i² (trapezoid weights along each
 /// component's λ path). Without dU/dλ the shares are equal. `None` when the
 /// windows carry no frame counts.
-fn window_shares(l: &report::LegReplica) -> Option<Vec<(usize, f64, f64)>> {
-    let mut by_comp: BTreeMap<Option<String>, Vec<&report::WindowSummary>> = BTreeMap::new();
+fn window_shares(l: &crate::analysis::LegReplica) -> Option<Vec<(usize, f64, f64)>> {
+    let mut by_comp: BTreeMap<Option<String>, Vec<&crate::analysis::WindowSummary>> = BTreeMap::new();
     for w in &l.windows {
         by_comp.entry(w.component.clone()).or_default().push(w);
     }

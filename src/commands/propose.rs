@@ -5,11 +5,11 @@
 //! every one is a prediction, printed as such. Nothing here changes a campaign or
 //! submits work.
 
+use crate::analysis::Results;
 use crate::cli::Global;
 use crate::collect::{read_leg_with, ReaderConfig, WindowHint};
 use crate::estimate::{estimate_leg, EstimateOptions, LegEstimate, Method};
 use crate::exit::Exit;
-use crate::analysis::Results;
 use crate::report::{self, plots};
 use legwork_numerics::design::allocate::{
     allocate, uniform, AllocationProblem, Network, Objective, WindowVariance,
@@ -1191,7 +1191,8 @@ fn sampling(args: SamplingArgs) -> anyhow::Result<()> {
 /// component's λ path). Without dU/dλ the shares are equal. `None` when the
 /// windows carry no frame counts.
 fn window_shares(l: &crate::analysis::LegReplica) -> Option<Vec<(usize, f64, f64)>> {
-    let mut by_comp: BTreeMap<Option<String>, Vec<&crate::analysis::WindowSummary>> = BTreeMap::new();
+    let mut by_comp: BTreeMap<Option<String>, Vec<&crate::analysis::WindowSummary>> =
+        BTreeMap::new();
     for w in &l.windows {
         by_comp.entry(w.component.clone()).or_default().push(w);
     }

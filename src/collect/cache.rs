@@ -12,7 +12,9 @@
 //! [`WindowSamples`] except the two matrices), then the reduced-potential matrix and
 //! the dU/dλ matrix as little-endian f64, back to back.
 
-use super::{read_window, ReadError, ReaderConfig, WindowSamples};
+use super::{read_window_with, ReadError, ReaderConfig, WindowHint, WindowSamples};
+use crate::campaign::Campaign;
+use crate::plan::{Plan, TaskIndex};
 use serde::{Deserialize, Serialize};
 use sha2::{Digest, Sha256};
 use std::fs;
@@ -21,7 +23,7 @@ use std::path::{Path, PathBuf};
 use std::time::UNIX_EPOCH;
 
 /// Bumped whenever the entry layout or the meaning of parsed samples changes.
-const FORMAT: u32 = 1;
+const FORMAT: u32 = 2;
 
 /// What identifies the parsed content of a window file.
 #[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
@@ -82,21 +84,49 @@ impl ParseCache {
     /// parsed and cached. A cache entry that cannot be read or written is not an
     /// error: the window is parsed and a warning logged.
     pub fn read(&self, path: &Path) -> Result<(WindowSamples, Source), ReadError> {
-        let key = self.key(path)?;
+        self.read_with(path, &self.reader, &WindowHint::default(), &self.reader_key)
+    }
+
+    /// The output `path` of window task `task`, read with its leg's reader and
+    /// what the plan knows about it (state, λ, temperature).
+    pub fn read_task(
+        &self,
+        campaign: &Campaign,
+        plan: &Plan,
+        task: TaskIndex,
+        path: &Path,
+    ) -> Result<(WindowSamples, Source), ReadError> {
+        let reader = super::legs::leg_reader(campaign, &plan.tasks[task].leg);
+        let hint = super::legs::window_hint(campaign, plan, task);
+        let key = format!(
+            "{}|{hint:?}",
+            serde_json::to_string(reader).unwrap_or_default()
+        );
+        self.read_with(path, reader, &hint, &key)
+    }
+
+    fn read_with(
+        &self,
+        path: &Path,
+        reader: &ReaderConfig,
+        hint: &WindowHint,
+        reader_key: &str,
+    ) -> Result<(WindowSamples, Source), ReadError> {
+        let key = self.key(path, reader_key)?;
         let entry = self.entry_path(path);
         match load(&entry, &key) {
             Ok(Some(w)) => return Ok((w, Source::Cached)),
             Ok(None) => {}
             Err(e) => tracing::warn!("ignoring unreadable cache entry {}: {e}", entry.display()),
         }
-        let w = read_window(path, &self.reader)?;
+        let w = read_window_with(path, reader, hint)?;
         if let Err(e) = store(&entry, &key, &w) {
             tracing::warn!("could not write cache entry {}: {e}", entry.display());
         }
         Ok((w, Source::Parsed))
     }
 
-    fn key(&self, path: &Path) -> Result<Key, ReadError> {
+    fn key(&self, path: &Path, reader_key: &str) -> Result<Key, ReadError> {
         let meta = fs::metadata(path).map_err(|source| ReadError::Io {
             path: path.to_path_buf(),
             source,
@@ -113,7 +143,7 @@ impl ParseCache {
             path: path.to_path_buf(),
             size: meta.len(),
             mtime_ns,
-            reader: self.reader_key.clone(),
+            reader: reader_key.to_string(),
         })
     }
 

@@ -111,7 +111,7 @@ pub fn collect_campaign(
                 .iter()
                 .map(|&t| {
                     let path: PathBuf = campaign.root.join(&plan.tasks[t].dir).join(&output);
-                    let (w, source) = cache.read(&path)?;
+                    let (w, source) = cache.read_task(campaign, plan, t, &path)?;
                     match source {
                         Source::Cached => cached.fetch_add(1, Ordering::Relaxed),
                         Source::Parsed => parsed.fetch_add(1, Ordering::Relaxed),

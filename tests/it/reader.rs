@@ -1,7 +1,7 @@
 //! Reading window output: the native window table with no configuration, the
 //! configurable column reader, and the errors a user gets for bad files.
 
-use legwork::collect::config::{ColumnRef, ColumnsConfig, DudlColumns, ReaderFormat};
+use legwork::collect::config::{ColumnRef, ColumnsConfig, DudlColumns, Energies, ReaderFormat};
 use legwork::collect::{read_leg, read_window, validate_output, ReadError, ReaderConfig};
 use legwork::units::EnergyUnit;
 use std::path::{Path, PathBuf};
@@ -107,7 +107,7 @@ fn missing_columns_and_metadata_are_clear_errors() {
     .unwrap_err()
     .to_string();
     assert!(
-        e.contains("not a legwork window table") && e.contains("format: columns"),
+        e.contains("not a legwork window table") && e.contains("configure a reader"),
         "{e}"
     );
     let p = write(d.path(), "short.tsv", &table(0, "0 1", "kT", "0\t1\t0\n"));
@@ -167,15 +167,16 @@ fn column_reader_by_name_and_index_with_relative_energies() {
             header: true,
             time: Some(ColumnRef::Name("step".into())),
             dudl: Some(DudlColumns::One(ColumnRef::Index(4))),
-            energies: vec![
+            energies: Energies::List(vec![
                 ColumnRef::Name("dE_lo".into()),
                 ColumnRef::Index(2),
                 ColumnRef::Name("dE_hi".into()),
-            ],
+            ]),
             energies_relative: true,
             energy_unit: EnergyUnit::KcalPerMol,
             temperature_k: Some(310.0),
         }),
+        ..Default::default()
     };
     let w = read_window(&p, &cfg).unwrap();
     let kt_kcal = 8.314_462_618e-3 * 310.0 / 4.184;

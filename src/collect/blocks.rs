@@ -69,6 +69,7 @@ pub(crate) fn parse_blocks(
     cfg: &BlocksConfig,
     hint: &WindowHint,
     on_conflict: OnConflict,
+    ex: Option<&mut super::Explanation>,
 ) -> Result<WindowSamples, ReadError> {
     let config = |m: String| ReadError::Config(m);
     let comments: Vec<Vec<u8>> = cfg.comment.iter().map(|c| c.as_bytes().to_vec()).collect();
@@ -152,20 +153,6 @@ pub(crate) fn parse_blocks(
     let mut frames = 0usize;
     let mut first_frame_done = false;
 
-    let missing = |row: &[Option<f64>], drow: &[Option<f64>], labels: &HashMap<String, Slot>| {
-        row.iter()
-            .enumerate()
-            .filter(|(_, v)| v.is_none())
-            .map(|(j, _)| slot_name(Slot::Energy(j), labels))
-            .chain(
-                drow.iter()
-                    .enumerate()
-                    .filter(|(_, v)| v.is_none())
-                    .map(|(c, _)| slot_name(Slot::Dudl(c), labels)),
-            )
-            .collect::<Vec<_>>()
-    };
-
     let mut pos = pre.at_first.0;
     let mut line_no = pre.at_first.1;
     let mut ended_cleanly = true;
@@ -208,7 +195,6 @@ pub(crate) fn parse_blocks(
                             &mut row,
                             &mut drow,
                             &labels,
-                            &missing,
                             &mut reduced,
                             &mut dudl,
                         )?;
@@ -299,7 +285,6 @@ pub(crate) fn parse_blocks(
                 &mut row,
                 &mut drow,
                 &labels,
-                &missing,
                 &mut reduced,
                 &mut dudl,
             )?;
@@ -312,7 +297,6 @@ pub(crate) fn parse_blocks(
                 &mut row,
                 &mut drow,
                 &labels,
-                &missing,
                 &mut reduced,
                 &mut dudl,
             )?;
@@ -364,6 +348,37 @@ pub(crate) fn parse_blocks(
         check_relative(path, &reduced, k, st.state, &label)?;
     }
     warnings.extend(st.warnings);
+    if let Some(ex) = ex {
+        ex.unit = format!(
+            "{unit}, {}",
+            super::meta::unit_source(meta, Some(cfg.energy_unit))
+        );
+        ex.temperature = super::meta::temperature_source(meta, cfg.temperature_k, hint);
+        let mut cols: Vec<(String, String)> = labels
+            .iter()
+            .map(|(l, s)| {
+                (
+                    format!("'{l}'"),
+                    match s {
+                        Slot::Energy(j) => format!("energy at state {j}"),
+                        Slot::Dudl(c) => format!("dU/dλ of component {}", st.components[*c]),
+                    },
+                )
+            })
+            .collect();
+        cols.sort_by_key(|(_, m)| {
+            let dudl = m.starts_with("dU/dλ");
+            let n: usize = m
+                .rsplit(' ')
+                .next()
+                .and_then(|v| v.parse().ok())
+                .unwrap_or(0);
+            (!dudl, n, m.clone())
+        });
+        cols.insert(0, (format!("{}", cfg.start), "starts a frame".into()));
+        cols.push(("any other label".into(), "ignored".into()));
+        ex.columns = cols;
+    }
     Ok(WindowSamples {
         source: path.to_path_buf(),
         state: st.state,
@@ -379,14 +394,31 @@ pub(crate) fn parse_blocks(
     })
 }
 
-#[allow(clippy::too_many_arguments)]
+/// The labels of the quantities a frame lacks.
+fn missing(
+    row: &[Option<f64>],
+    drow: &[Option<f64>],
+    labels: &HashMap<String, Slot>,
+) -> Vec<String> {
+    row.iter()
+        .enumerate()
+        .filter(|(_, v)| v.is_none())
+        .map(|(j, _)| slot_name(Slot::Energy(j), labels))
+        .chain(
+            drow.iter()
+                .enumerate()
+                .filter(|(_, v)| v.is_none())
+                .map(|(c, _)| slot_name(Slot::Dudl(c), labels)),
+        )
+        .collect()
+}
+
 fn finish_frame(
     path: &Path,
     begun: usize,
     row: &mut [Option<f64>],
     drow: &mut [Option<f64>],
     labels: &HashMap<String, Slot>,
-    missing: &dyn Fn(&[Option<f64>], &[Option<f64>], &HashMap<String, Slot>) -> Vec<String>,
     reduced: &mut Vec<f64>,
     dudl: &mut Vec<f64>,
 ) -> Result<(), ReadError> {

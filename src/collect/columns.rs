@@ -6,8 +6,9 @@ use super::meta::{
     check_against_plan, read_preamble, resolve_states, resolve_temperature, resolve_unit,
     WindowHint,
 };
+use super::meta::{temperature_source, unit_source};
 use super::parse::{parse_rows, split_header, Delim, RowSpec, Slot};
-use super::WindowSamples;
+use super::{Explanation, WindowSamples};
 use crate::units::EnergyUnit;
 use std::path::Path;
 
@@ -43,6 +44,7 @@ pub(crate) fn parse_columns(
     cfg: &ColumnsConfig,
     hint: &WindowHint,
     on_conflict: OnConflict,
+    ex: Option<&mut Explanation>,
 ) -> Result<WindowSamples, ReadError> {
     if cfg.energies == Energies::List(Vec::new()) {
         return Err(ReadError::Config(
@@ -144,6 +146,11 @@ pub(crate) fn parse_columns(
         n_dudl,
         scale: unit.factor_to(EnergyUnit::Kt, temperature_k),
     };
+    if let Some(ex) = ex {
+        ex.unit = format!("{unit}, {}", unit_source(meta, Some(cfg.energy_unit)));
+        ex.temperature = temperature_source(meta, cfg.temperature_k, hint);
+        ex.columns = explain_slots(&spec.slots, &spec.headers, &st.components, true);
+    }
     let rows = parse_rows(path, text, data_start.0, data_start.1, &spec)?;
     if cfg.energies_relative {
         check_relative(
@@ -313,4 +320,31 @@ pub(crate) fn check_relative(
         )));
     }
     Ok(())
+}
+
+/// (column, meaning) for every field: energies, dU/dλ and ignored columns.
+pub(crate) fn explain_slots(
+    slots: &[Slot],
+    headers: &[String],
+    components: &[String],
+    indexed: bool,
+) -> Vec<(String, String)> {
+    slots
+        .iter()
+        .zip(headers)
+        .enumerate()
+        .map(|(i, (s, h))| {
+            let name = if indexed && !h.starts_with("column ") {
+                format!("{h} (column {i})")
+            } else {
+                h.clone()
+            };
+            let meaning = match s {
+                Slot::Energy(j) => format!("energy at state {j}"),
+                Slot::Dudl(c) => format!("dU/dλ of component {}", components[*c]),
+                Slot::Skip => "ignored".to_string(),
+            };
+            (name, meaning)
+        })
+        .collect()
 }

@@ -333,3 +333,23 @@ fn default_comments() -> Vec<String> {
 fn yes() -> bool {
     true
 }
+
+/// Reads a reader configuration from a YAML file: either the reader mapping
+/// itself (`format: columns`, `columns: {...}`) or any mapping with a `reader:`
+/// key (so a campaign file works too).
+pub fn load_reader_file(path: &std::path::Path) -> Result<ReaderConfig, String> {
+    let text = std::fs::read_to_string(path)
+        .map_err(|e| format!("{}: cannot read the reader file: {e}", path.display()))?;
+    let value: serde_json::Value =
+        serde_yaml::from_str(&text).map_err(|e| format!("{}: not YAML: {e}", path.display()))?;
+    let section = match value.get("reader") {
+        Some(r) => r.clone(),
+        None => value,
+    };
+    serde_json::from_value(section).map_err(|e| {
+        format!(
+            "{}: not a reader configuration: {e}; see README *Reading other engines' output*",
+            path.display()
+        )
+    })
+}

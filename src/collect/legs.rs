@@ -13,7 +13,7 @@ use std::path::{Path, PathBuf};
 /// The campaign model does not carry per-leg readers yet; once `Leg` has a
 /// `reader: Option<ReaderConfig>`, this returns `leg.reader.as_ref()` and every
 /// caller (collect, the done check, `check`, `try-reader`) follows.
-fn leg_override<'a>(_leg: &'a Leg) -> Option<&'a ReaderConfig> {
+fn leg_override(_leg: &Leg) -> Option<&ReaderConfig> {
     None
 }
 

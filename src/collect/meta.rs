@@ -476,3 +476,32 @@ pub(crate) fn resolve_states(
         warnings,
     })
 }
+
+/// Where a window's temperature came from, in words (for `try-reader`).
+pub(crate) fn temperature_source(meta: &Meta, reader: Option<f64>, hint: &WindowHint) -> String {
+    if hint.temperature_k.is_some() {
+        return "given on the command line (overrides the file)".into();
+    }
+    match (meta.temperature_k, reader, hint.campaign_temperature_k) {
+        (Some(_), Some(_), _) => "the file's temperature_K line (agrees with the reader's)".into(),
+        (Some(_), None, Some(_)) => {
+            "the file's temperature_K line (agrees with the campaign's)".into()
+        }
+        (Some(_), None, None) => "the file's temperature_K line".into(),
+        (None, Some(_), _) => "the reader's temperature_K (the file does not say)".into(),
+        (None, None, Some(_)) => "the campaign's temperature_K (the file does not say)".into(),
+        (None, None, None) => "unknown".into(),
+    }
+}
+
+/// Where a window's energy unit came from, in words (for `try-reader`).
+pub(crate) fn unit_source(meta: &Meta, reader: Option<EnergyUnit>) -> String {
+    match (meta.energy_unit, reader) {
+        (Some(_), Some(_)) => {
+            "the reader's energy_unit (the file's energy_unit line agrees)".into()
+        }
+        (Some(_), None) => "the file's energy_unit line".into(),
+        (None, Some(_)) => "the reader's energy_unit (the file does not say)".into(),
+        (None, None) => "unknown".into(),
+    }
+}

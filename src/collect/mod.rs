@@ -59,6 +59,34 @@ pub fn read_window_with(
     })
 }
 
+/// What a reader understood of a window, beyond its samples: which column (or
+/// label) became which state or component, and where the unit and temperature
+/// came from.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct Explanation {
+    /// (column or label in the file, what it became), in file order.
+    pub columns: Vec<(String, String)>,
+    /// The energy unit and where it came from.
+    pub unit: String,
+    /// Where the temperature came from.
+    pub temperature: String,
+}
+
+/// Reads one window and says what the reader understood (see [`Explanation`]).
+pub fn explain_window(
+    path: &Path,
+    config: &ReaderConfig,
+    hint: &WindowHint,
+) -> Result<(WindowSamples, Explanation), ReadError> {
+    let text = std::fs::read(path).map_err(|source| ReadError::Io {
+        path: path.to_path_buf(),
+        source,
+    })?;
+    let mut ex = Explanation::default();
+    let w = parse_inner(path, &text, config, hint, Some(&mut ex))?;
+    Ok((w, ex))
+}
+
 /// Parses one window's output already in memory (`path` is used in messages).
 pub fn parse_window(
     path: &Path,
@@ -66,9 +94,19 @@ pub fn parse_window(
     config: &ReaderConfig,
     hint: &WindowHint,
 ) -> Result<WindowSamples, ReadError> {
+    parse_inner(path, text, config, hint, None)
+}
+
+fn parse_inner(
+    path: &Path,
+    text: &[u8],
+    config: &ReaderConfig,
+    hint: &WindowHint,
+    ex: Option<&mut Explanation>,
+) -> Result<WindowSamples, ReadError> {
     match config.format {
         ReaderFormat::WindowTable => {
-            window_table::parse_window_table(path, text, hint, config.on_conflict)
+            window_table::parse_window_table(path, text, hint, config.on_conflict, ex)
         }
         ReaderFormat::Columns => {
             let cols = config.columns.as_ref().ok_or_else(|| {
@@ -77,7 +115,7 @@ pub fn parse_window(
                         .into(),
                 )
             })?;
-            columns::parse_columns(path, text, cols, hint, config.on_conflict)
+            columns::parse_columns(path, text, cols, hint, config.on_conflict, ex)
         }
         ReaderFormat::Blocks => {
             let b = config.blocks.as_ref().ok_or_else(|| {
@@ -86,7 +124,7 @@ pub fn parse_window(
                         .into(),
                 )
             })?;
-            blocks::parse_blocks(path, text, b, hint, config.on_conflict)
+            blocks::parse_blocks(path, text, b, hint, config.on_conflict, ex)
         }
     }
 }

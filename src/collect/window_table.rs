@@ -16,6 +16,7 @@ pub(crate) fn parse_window_table(
     text: &[u8],
     hint: &WindowHint,
     on_conflict: OnConflict,
+    ex: Option<&mut super::Explanation>,
 ) -> Result<WindowSamples, ReadError> {
     let comments = [b"#".to_vec()];
     let pre = read_preamble(path, text, &comments)?;
@@ -173,6 +174,11 @@ pub(crate) fn parse_window_table(
         n_dudl: components.len(),
         scale: unit.factor_to(EnergyUnit::Kt, temperature_k),
     };
+    if let Some(ex) = ex {
+        ex.unit = format!("{unit}, the file's energy_unit line");
+        ex.temperature = super::meta::temperature_source(meta, None, hint);
+        ex.columns = super::columns::explain_slots(&spec.slots, &spec.headers, &components, false);
+    }
     let rows = parse_rows(path, text, pre.after_first.0, pre.after_first.1, &spec)?;
     Ok(WindowSamples {
         source: path.to_path_buf(),

@@ -107,6 +107,8 @@ pub fn run(args: Args, global: &Global) -> anyhow::Result<()> {
         .map(|t| window_hint(c, &plan, t))
         .unwrap_or_default();
     let mut windows: Vec<WindowSamples> = Vec::new();
+    // A note every window repeats (a settled conflict) is printed once.
+    let mut said = std::collections::HashSet::new();
     for (i, path) in args.outputs.iter().enumerate() {
         let (window, how) = match in_tree(&root, path, &plan, &leg.name) {
             Some(Ok(w)) => (Some(w), "from its place in the tree".to_string()),
@@ -151,7 +153,7 @@ pub fn run(args: Args, global: &Global) -> anyhow::Result<()> {
                 "{e}{more}\n  hint: fix the reader settings (README: *Reading other engines' output*) and try again"
             ))
         })?;
-        print!("{}", show(path, &how, &w, &ex, leg, args.frames));
+        print!("{}", show(path, &how, &w, &ex, leg, args.frames, &mut said));
         windows.push(w);
     }
     let mut states: Vec<usize> = windows.iter().map(|w| w.state).collect();
@@ -191,7 +193,9 @@ pub fn run(args: Args, global: &Global) -> anyhow::Result<()> {
             let _ = writeln!(s, "  smallest overlap between neighbouring states: {o:.3}");
         }
         for w in samples.warnings.iter().chain(&est.warnings) {
-            let _ = writeln!(s, "  warning: {w}");
+            if said.insert(w.clone()) {
+                let _ = writeln!(s, "  warning: {w}");
+            }
         }
         print!("{s}");
     } else if !global.quiet && args.outputs.len() > 1 {
@@ -234,6 +238,7 @@ fn show(
     ex: &Explanation,
     leg: &crate::campaign::Leg,
     frames: usize,
+    said: &mut std::collections::HashSet<String>,
 ) -> String {
     let mut s = String::new();
     let k = w.n_states;
@@ -282,6 +287,11 @@ fn show(
     show.retain(|&j| j < k);
     show.sort_unstable();
     show.dedup();
+    for m in &w.warnings {
+        if said.insert(m.clone()) {
+            let _ = writeln!(s, "  warning: {m}");
+        }
+    }
     let n = frames.min(w.frames);
     if n == 0 {
         return s;
@@ -323,9 +333,6 @@ fn show(
             last = Some(j);
         }
         let _ = writeln!(s, "{line}");
-    }
-    for m in &w.warnings {
-        let _ = writeln!(s, "  warning: {m}");
     }
     s
 }

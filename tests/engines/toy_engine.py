@@ -59,13 +59,25 @@ def main():
     p.add_argument("--declare", action="store_true",
                    help="write energy_unit and temperature_K comment lines")
     p.add_argument("--claim-state", type=int, help="write a 'state:' comment line with this value")
+    p.add_argument("--declare-lambdas", action="store_true",
+                   help="write 'lambdas.charge:' and 'lambdas.shape:' comment lines")
     p.add_argument("--output", required=True)
     p.add_argument("--count-file", help="append one line per run to this file")
+    p.add_argument("--short-first-run", action="store_true",
+                   help="on the first run of this output (per --count-file), write half the frames and exit 0, "
+                        "as an engine stopped early would")
     a = p.parse_args()
 
+    first_run = True
     if a.count_file:
+        here = os.path.abspath(a.output)
+        if os.path.exists(a.count_file):
+            with open(a.count_file) as f:
+                first_run = here not in (line.strip() for line in f)
         with open(a.count_file, "a") as f:
-            f.write(f"{a.output}\n")
+            f.write(f"{here}\n")
+    if a.short_first_run and first_run:
+        a.frames //= 2
     lam_c, lam_s = a.charge, a.shape_lambdas
     n = len(lam_c)
     if len(lam_s) != n or not 0 <= a.state < n:
@@ -92,6 +104,9 @@ def main():
                 out.write(f"@ energy_unit: {a.unit}\n@ temperature_K: {a.temperature}\n")
             if a.claim_state is not None:
                 out.write(f"@ state: {a.claim_state}\n")
+            if a.declare_lambdas:
+                out.write("@ lambdas.charge: " + " ".join(map(str, lam_c)) + "\n")
+                out.write("@ lambdas.shape: " + " ".join(map(str, lam_s)) + "\n")
             cols = ["step", "wallclock", "dUdl_charge", "dUdl_shape"] + [f"dE_{j}" for j in range(n)]
             out.write("  ".join(cols) + "\n")
         else:
@@ -100,6 +115,9 @@ def main():
                 out.write(f"# energy_unit: {a.unit}\n# temperature_K: {a.temperature}\n")
             if a.claim_state is not None:
                 out.write(f"# state: {a.claim_state}\n")
+            if a.declare_lambdas:
+                out.write("# lambdas.charge: " + " ".join(map(str, lam_c)) + "\n")
+                out.write("# lambdas.shape: " + " ".join(map(str, lam_s)) + "\n")
         for t in range(a.frames):
             x = [ca * a.shift + rng.gauss(0.0, sigma)] + [rng.gauss(0.0, sigma) for _ in range(a.dimensions - 1)]
             r1 = x[0] - ca * a.shift

@@ -348,7 +348,7 @@ pub fn load_reader_file(path: &std::path::Path) -> Result<ReaderConfig, String> 
     };
     serde_json::from_value(section).map_err(|e| {
         format!(
-            "{}: not a reader configuration: {e}; see README *Reading other engines' output*",
+            "{}: not a reader configuration: {e}; see README *Reading engine output*",
             path.display()
         )
     })

@@ -1,4 +1,5 @@
-//! legwork's native window table (DESIGN.md), read without configuration.
+//! legwork's native window table (README: *The window table*), read without
+//! configuration.
 
 use super::config::OnConflict;
 use super::error::ReadError;
@@ -44,7 +45,7 @@ pub(crate) fn parse_window_table(
         _ => {
             return Err(header_err(
                 1,
-                format!("not a legwork window table: the first line should be '# {MAGIC} 1'; for another engine's output configure a reader (README: *Reading other engines' output*)"),
+                format!("not a legwork window table: the first line should be '# {MAGIC} 1'; for another engine's output configure a reader (README: *Reading engine output*)"),
             ))
         }
     }

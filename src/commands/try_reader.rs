@@ -150,7 +150,7 @@ pub fn run(args: Args, global: &Global) -> anyhow::Result<()> {
                 ""
             };
             Exit::bad_input(format!(
-                "{e}{more}\n  hint: fix the reader settings (README: *Reading other engines' output*) and try again"
+                "{e}{more}\n  hint: fix the reader settings (README: *Reading engine output*) and try again"
             ))
         })?;
         print!("{}", show(path, &how, &w, &ex, leg, args.frames, &mut said));

@@ -29,7 +29,7 @@ fn resolve(
         ColumnRef::Name(n) if has_header => headers.iter().position(|h| h == n).ok_or_else(|| ReadError::Header {
             path: path.to_path_buf(),
             line,
-            problem: format!("no column named '{n}' in the header ({}); fix reader.columns", headers.join(", ")),
+            problem: format!("no column named '{n}' in the header line ({}); fix reader.columns, or, if that line is not the header, add its comment prefix to `comment:`", headers.join(", ")),
         }),
         ColumnRef::Name(n) => Err(ReadError::Config(format!(
             "column '{n}' is given by name but `header: false`; give 0-based indices or set `header: true`"
@@ -212,7 +212,8 @@ fn select_energies(
                 .collect();
             if found.is_empty() {
                 return Err(header_err(format!(
-                    "no column name matches energies `matching: {p}` (the columns are {}); fix the pattern",
+                    "no column name matches energies `matching: {p}` (the header line's names are {}); fix the pattern, \
+                     or, if that line is not the header, add its comment prefix to `comment:` (or set `header: false`)",
                     headers.join(", ")
                 )));
             }

@@ -79,7 +79,7 @@ pub fn collect_campaign(
             stage.name
         ))
     })?;
-    let cache = ParseCache::new(&campaign.root.join(".legwork"), &campaign.reader);
+    let cache = ParseCache::for_campaign(campaign, plan);
     let opts = EstimateOptions::from_analysis(&campaign.analysis);
     let (ready, waiting): (Vec<&WindowSet>, Vec<&WindowSet>) = plan
         .windows
@@ -111,7 +111,7 @@ pub fn collect_campaign(
                 .iter()
                 .map(|&t| {
                     let path: PathBuf = campaign.root.join(&plan.tasks[t].dir).join(&output);
-                    let (w, source) = cache.read_task(campaign, plan, t, &path)?;
+                    let (w, source) = cache.read(&path)?;
                     match source {
                         Source::Cached => cached.fetch_add(1, Ordering::Relaxed),
                         Source::Parsed => parsed.fetch_add(1, Ordering::Relaxed),

@@ -16,6 +16,7 @@ pub mod resume;
 pub mod run;
 pub mod status;
 pub mod submit;
+pub mod try_reader;
 pub mod watch;
 
 use crate::cli::{Command, Global};
@@ -35,6 +36,7 @@ pub fn dispatch(command: Command, global: &Global) -> anyhow::Result<()> {
         Command::Report(a) => report::run(a, global),
         Command::Estimate(a) => estimate::run(a, global),
         Command::Propose(a) => propose::run(a, global),
+        Command::TryReader(a) => try_reader::run(a, global),
         Command::Run(a) => run::run(a, global),
         Command::Completions(a) => completions::run(a, global),
         Command::Man(a) => man::run(a, global),

@@ -11,6 +11,7 @@ pub mod journal;
 pub mod lock;
 pub mod markers;
 pub mod ops;
+pub mod reasons;
 pub mod record;
 pub mod selection;
 pub mod summary;

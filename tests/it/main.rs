@@ -30,6 +30,7 @@ mod late_marker;
 mod local;
 mod lsf;
 mod network;
+mod own_engine;
 mod pbs;
 mod reader;
 mod report;

@@ -105,3 +105,61 @@ fn default_poll() -> f64 {
 fn default_walltime_factor() -> f64 {
     1.5
 }
+
+/// The spelling of every scheduler kind in campaign files, in declaration order,
+/// taken from the serde derive of [`SchedulerKind`]: a new variant is listed
+/// without another edit.
+pub fn kind_names() -> Vec<&'static str> {
+    /// Captures the list of variants serde reports for an unknown one.
+    #[derive(Debug)]
+    struct Variants(&'static [&'static str]);
+    impl std::fmt::Display for Variants {
+        fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+            write!(f, "{}", self.0.join(", "))
+        }
+    }
+    impl std::error::Error for Variants {}
+    impl serde::de::Error for Variants {
+        fn custom<T: std::fmt::Display>(_: T) -> Self {
+            Variants(&[])
+        }
+        fn unknown_variant(_: &str, expected: &'static [&'static str]) -> Self {
+            Variants(expected)
+        }
+    }
+    let probe = serde::de::value::StrDeserializer::<Variants>::new("");
+    match SchedulerKind::deserialize(probe) {
+        Err(Variants(names)) => names.to_vec(),
+        Ok(_) => Vec::new(),
+    }
+}
+
+#[cfg(test)]
+mod kind_tests {
+    use super::*;
+
+    #[test]
+    fn every_kind_is_named_once_and_reads_back() {
+        let names = kind_names();
+        let kinds: Vec<SchedulerKind> = names
+            .iter()
+            .map(|n| serde_json::from_value(serde_json::json!(n)).unwrap())
+            .collect();
+        // A match the compiler checks: a new variant must be counted here.
+        let count = kinds
+            .iter()
+            .map(|k| match k {
+                SchedulerKind::Local
+                | SchedulerKind::Slurm
+                | SchedulerKind::Pbs
+                | SchedulerKind::Sge
+                | SchedulerKind::Lsf => 1,
+            })
+            .sum::<usize>();
+        assert_eq!(count, 5);
+        let mut unique = kinds.clone();
+        unique.dedup();
+        assert_eq!(unique.len(), kinds.len());
+        assert_eq!(names, ["local", "slurm", "pbs", "sge", "lsf"]);
+    }
+}

@@ -16,7 +16,7 @@ pub mod sge;
 pub mod slurm;
 mod status;
 
-pub use config::{SchedulerConfig, SchedulerKind};
+pub use config::{kind_names, SchedulerConfig, SchedulerKind};
 pub use status::{JobStatus, QueueState};
 
 use crate::plan::Resources;

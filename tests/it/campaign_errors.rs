@@ -333,7 +333,7 @@ fn unknown_key_in_a_section_owned_elsewhere() {
         &edited("seed: 1\n", "seed: 1\nreader: { formatt: columns }\n"),
         "campaign.yaml",
         3,
-        "unknown field `formatt`",
+        "unknown key 'formatt' in reader",
     );
     assert!(d.hint.unwrap().contains("did you mean 'format'"));
 }
@@ -347,9 +347,11 @@ fn wrong_type_in_a_section_owned_elsewhere_points_at_the_value() {
     let (_d, err) = load_err(&yaml);
     let e = err.errors().next().unwrap();
     assert!(
-        e.message.contains("in scheduler") && e.message.contains("invalid type"),
+        e.message
+            .contains("scheduler.max_queued must be a whole number from 0 to 18446744073709551615, not a string"),
         "{err}"
     );
+    assert!(e.hint.as_deref().unwrap().contains("whole number"), "{err}");
     assert_eq!((e.line, e.col), (5, 15), "{err}");
 }
 

@@ -489,16 +489,24 @@ impl<'de> de::MapAccess<'de> for MapDe<'_> {
     fn next_value_seed<V: DeserializeSeed<'de>>(&mut self, seed: V) -> Result<V::Value, DeError> {
         let (key, node) = &self.entries[self.next];
         self.next += 1;
-        let path = if self.path.is_empty() {
-            key.key_text()
-        } else {
-            format!("{}.{}", self.path, key.key_text())
-        };
+        let path = child_path(self.path, &key.key_text());
         seed.deserialize(NodeDe { node, path: &path })
     }
 
     fn size_hint(&self) -> Option<usize> {
         Some(self.entries.len() - self.next)
+    }
+}
+
+/// How a value inside `parent` is named: `scheduler.max_queued`, or `cpus in
+/// resources of leg 'complex'` where the parent is a description.
+fn child_path(parent: &str, key: &str) -> String {
+    if parent.is_empty() {
+        key.to_string()
+    } else if parent.contains(' ') {
+        format!("{key} in {parent}")
+    } else {
+        format!("{parent}.{key}")
     }
 }
 
@@ -520,7 +528,7 @@ impl<'de, 'a> de::EnumAccess<'de> for EnumDe<'a> {
             key: self.key,
             path: self.path,
         })?;
-        let path = format!("{}.{}", self.path, self.key.key_text());
+        let path = child_path(self.path, &self.key.key_text());
         Ok((
             v,
             NodeVariant {

@@ -7,6 +7,7 @@ pub fn parse_walltime(text: &str) -> Result<u64, String> {
     let bad = || {
         format!("walltime '{text}' is not understood: write e.g. 90s, 30m, 4h, 1h30m, 2d, 01:30:00 or 1-12:00:00")
     };
+    let too_long = || format!("walltime '{text}' is too long to count in seconds");
     if t.is_empty() {
         return Err(bad());
     }
@@ -39,7 +40,11 @@ pub fn parse_walltime(text: &str) -> Result<u64, String> {
                 "walltime '{text}': minutes and seconds must be below 60"
             ));
         }
-        let total = days * 86_400 + h * 3600 + m * 60 + s;
+        let total = days
+            .checked_mul(86_400)
+            .and_then(|d| d.checked_add(h.checked_mul(3600)?))
+            .and_then(|t| t.checked_add(m * 60 + s))
+            .ok_or_else(too_long)?;
         return if total == 0 {
             Err(format!("walltime '{text}' is zero"))
         } else {
@@ -70,7 +75,11 @@ pub fn parse_walltime(text: &str) -> Result<u64, String> {
             return Err(bad());
         }
         last_rank = rank;
-        total += num.parse::<u64>().map_err(|_| bad())? * mult;
+        let n = num.parse::<u64>().map_err(|_| too_long())?;
+        total = n
+            .checked_mul(mult)
+            .and_then(|x| x.checked_add(total))
+            .ok_or_else(too_long)?;
         num.clear();
     }
     if !num.is_empty() {
@@ -145,6 +154,9 @@ mod tests {
         assert!(parse_walltime("30m1h").is_err());
         assert!(parse_walltime("00:61:00").is_err());
         assert!(parse_walltime("0s").is_err());
+        assert_eq!(parse_walltime("99999999d"), Ok(99_999_999 * 86_400));
+        assert!(parse_walltime("999999999999999999999d").is_err());
+        assert!(parse_walltime("99999999999999999-00:00:00").is_err());
         assert_eq!(format_walltime(5400), "01:30:00");
         assert_eq!(format_walltime(129_600), "36:00:00");
     }

@@ -116,25 +116,7 @@ fn build(ctx: &mut Ctx, root: &Node, input: &Input, extra: &mut Vec<Diagnostic>)
             "legs: { complex: {…}, solvent: {…} }",
         )
         .map_or_else(Vec::new, |n| legs::legs(ctx, n));
-    let templates = Templates {
-        dir: &folders.templates,
-        ok: folders.templates_ok,
-    };
-    let stages = top
-        .require(
-            ctx,
-            "stages",
-            "the campaign file",
-            "stages: [{ name: production, per: window, template: production.sh.tera }]",
-        )
-        .map_or_else(Vec::new, |n| stages::stages(ctx, n, &templates));
-    if !stages.is_empty() && !stages.iter().any(|s| s.per == StagePer::Window) {
-        ctx.warn(
-            top.key_pos("stages"),
-            "no stage runs per window: there will be nothing to analyse",
-            None,
-        );
-    }
+    let stages = stages(ctx, &top, &folders);
     let reader = settings::section(ctx, top.get("reader"), "reader");
     let analysis = settings::analysis(ctx, top.get("analysis"), &stages);
     let experiment = top
@@ -171,6 +153,29 @@ fn build(ctx: &mut Ctx, root: &Node, input: &Input, extra: &mut Vec<Diagnostic>)
     hasher.update(campaign.root.to_string_lossy().as_bytes());
     campaign.fingerprint = format!("{:x}", hasher.finalize());
     campaign
+}
+
+fn stages(ctx: &mut Ctx, top: &Fields, folders: &Folders) -> Vec<Stage> {
+    let templates = Templates {
+        dir: &folders.templates,
+        ok: folders.templates_ok,
+    };
+    let stages = top
+        .require(
+            ctx,
+            "stages",
+            "the campaign file",
+            "stages: [{ name: production, per: window, template: production.sh.tera }]",
+        )
+        .map_or_else(Vec::new, |n| stages::stages(ctx, n, &templates));
+    if !stages.is_empty() && !stages.iter().any(|s| s.per == StagePer::Window) {
+        ctx.warn(
+            top.key_pos("stages"),
+            "no stage runs per window: there will be nothing to analyse",
+            None,
+        );
+    }
+    stages
 }
 
 fn name(ctx: &mut Ctx, top: &Fields) -> String {

@@ -217,6 +217,11 @@ impl NodeDe<'_> {
                 found: s.clone(),
             })
             .at(self.node.pos, self.path)),
+            Value::Float(f) => Err(DeError::new(Problem::WrongType {
+                expected: range(),
+                found: format!("{f}, a number written with a fraction or an exponent"),
+            })
+            .at(self.node.pos, self.path)),
             _ => Err(self.wrong(&range())),
         }
     }

@@ -338,18 +338,34 @@ fn yes() -> bool {
 /// itself (`format: columns`, `columns: {...}`) or any mapping with a `reader:`
 /// key (so a campaign file works too).
 pub fn load_reader_file(path: &std::path::Path) -> Result<ReaderConfig, String> {
+    use crate::campaign::yaml::{self, Value};
     let text = std::fs::read_to_string(path)
         .map_err(|e| format!("{}: cannot read the reader file: {e}", path.display()))?;
-    let value: serde_json::Value =
-        serde_yaml::from_str(&text).map_err(|e| format!("{}: not YAML: {e}", path.display()))?;
-    let section = match value.get("reader") {
-        Some(r) => r.clone(),
-        None => value,
-    };
-    serde_json::from_value(section).map_err(|e| {
+    let root = yaml::parse(&text).map_err(|e| {
         format!(
-            "{}: not a reader configuration: {e}; see README *Reading engine output*",
-            path.display()
+            "{}:{}:{}: not YAML: {}",
+            path.display(),
+            e.pos.line,
+            e.pos.col,
+            e.message
+        )
+    })?;
+    let section = match &root.value {
+        Value::Map(pairs) => pairs
+            .iter()
+            .find(|(k, _)| k.as_str() == Some("reader"))
+            .map(|(_, v)| v)
+            .unwrap_or(&root),
+        _ => &root,
+    };
+    crate::campaign::de::from_node(section, "reader").map_err(|e| {
+        let pos = e.pos.unwrap_or(section.pos);
+        format!(
+            "{}:{}:{}: not a reader configuration: {}; see README *Reading engine output*",
+            path.display(),
+            pos.line,
+            pos.col,
+            e.message()
         )
     })
 }

@@ -4,25 +4,19 @@
 
 use super::config::{ColumnRef, DudlColumns, Energies, OnConflict, ReaderConfig, ReaderFormat};
 use super::{validate_output_with, ReadError, WindowHint};
-use crate::campaign::{Campaign, Leg};
+use crate::campaign::Campaign;
 use crate::plan::{Plan, TaskIndex};
 use std::path::{Path, PathBuf};
 
 /// A leg's own `reader:`, when the campaign gives it one.
 ///
-/// The campaign model does not carry per-leg readers yet; once `Leg` has a
-/// `reader: Option<ReaderConfig>`, this returns `leg.reader.as_ref()` and every
-/// caller (collect, the done check, `check`, `try-reader`) follows.
-fn leg_override(_leg: &Leg) -> Option<&ReaderConfig> {
-    None
-}
-
-/// The reader of leg `leg`: its own `reader:`, else the campaign's.
+/// The reader of leg `leg`: its own `reader:`, else the campaign's (every
+/// caller — collect, the done check, `check`, `try-reader` — goes through this).
 pub fn leg_reader<'a>(campaign: &'a Campaign, leg: &str) -> &'a ReaderConfig {
-    campaign
-        .leg(leg)
-        .and_then(leg_override)
-        .unwrap_or(&campaign.reader)
+    match campaign.leg(leg) {
+        Some(l) => campaign.reader_for(l),
+        None => &campaign.reader,
+    }
 }
 
 /// What the plan knows about one window task: the state it samples, every

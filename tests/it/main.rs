@@ -11,6 +11,7 @@ mod skip;
 
 mod browser;
 mod campaign_errors;
+mod campaign_limits;
 mod campaign_new;
 mod cli;
 mod crash;

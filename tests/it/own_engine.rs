@@ -157,6 +157,48 @@ fn blocks_end_to_end_match_the_closed_form() {
 }
 
 #[test]
+fn legs_with_their_own_readers_read_two_shapes_in_one_campaign() {
+    if !python() {
+        return;
+    }
+    // The bound leg's engine writes blocks (absolute energies in kcal/mol) and
+    // the leg carries its own `reader:`; the free leg keeps the campaign's rows
+    // reader. One `legwork run`, both legs against the closed form.
+    let (_tmp, file) = setup("rows.yaml", |s| {
+        s.replace(
+            "    vars: { environment: bound, offset: 4.0 }\n",
+            "    vars: { environment: bound, offset: 4.0, shape: blocks, unit: kcal/mol }\n    \
+             reader:\n      format: blocks\n      blocks:\n        start: frame\n        \
+             dudl: { charge: slope charge, shape: slope shape }\n        \
+             energies: { matching: \"^energy at state \" }\n        energy_unit: kcal/mol\n",
+        )
+    });
+    let text_now = std::fs::read_to_string(&file).unwrap();
+    assert!(
+        text_now.contains("format: blocks"),
+        "the edit did not apply"
+    );
+    let check = legwork(&file, &["check", "rows.yaml"]);
+    assert!(check.status.success(), "{}", text(&check));
+    let summary = text(&check);
+    assert!(
+        summary.contains("blocks") && summary.contains("columns"),
+        "check names both readers: {summary}"
+    );
+    let out = legwork(&file, &["-q", "run", "rows.yaml"]);
+    assert!(out.status.success(), "{}", text(&out));
+    assert_eq!(engine_runs(&file), 28, "every window once");
+    let bound = std::fs::read_to_string(
+        file.parent()
+            .unwrap()
+            .join("toy-rows/toy-a+toy-b/bound/r1/w00/production/out.dat"),
+    )
+    .unwrap();
+    assert!(bound.contains("frame"), "the bound leg wrote blocks");
+    assert_exact(&file.parent().unwrap().join("toy-rows"));
+}
+
+#[test]
 fn a_reader_mistake_costs_no_engine_run() {
     if !python() {
         return;

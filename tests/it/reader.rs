@@ -240,8 +240,10 @@ fn hint(state: usize, lambdas: &[f64], components: &[(&str, &[f64])]) -> WindowH
 }
 
 fn yaml_reader(text: &str) -> ReaderConfig {
-    let v: serde_json::Value = serde_yaml::from_str(text).unwrap();
-    serde_json::from_value(v.get("reader").cloned().unwrap_or(v)).unwrap()
+    let d = tempfile::tempdir().unwrap();
+    let path = d.path().join("reader.yaml");
+    std::fs::write(&path, text).unwrap();
+    legwork::collect::config::load_reader_file(&path).unwrap()
 }
 
 const BLOCKS: &str = "reader:\n  format: blocks\n  blocks:\n    start: frame\n    dudl: slope\n    energies: { matching: \"^energy \" }\n    energy_unit: kT\n";

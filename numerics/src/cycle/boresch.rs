@@ -16,6 +16,7 @@ pub const STANDARD_VOLUME_A3: f64 = 1.0e27 / 6.022_140_76e23;
 /// kcal/mol/Å², angular force constants in kcal/mol/rad². The reference
 /// dihedrals do not enter the correction, so they are not needed here.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
 pub struct BoreschRestraint {
     /// Reference anchor–anchor distance, Å.
     pub r0: f64,

@@ -108,7 +108,7 @@ pub fn run(args: Args, _global: &Global) -> anyhow::Result<()> {
             read_s,
             m.solve_seconds,
             m.iterations,
-            crate::estimate::mbar::PASSES.load(std::sync::atomic::Ordering::Relaxed)
+            m.passes
         );
     }
     if args.json {

@@ -39,10 +39,11 @@ pub(super) fn windows(
             inefficiency,
             minimum: opts.min_uncorrelated,
         };
+        // One warning per problem: a window short of samples (or drifting) in both
+        // series is named once, for the energy differences.
         if d.used < opts.min_uncorrelated {
             notes.push(few(d.used, d.inefficiency, Series::Energy));
-        }
-        if let (Some(n), Some(g)) = (d.ti_used, d.ti_inefficiency) {
+        } else if let (Some(n), Some(g)) = (d.ti_used, d.ti_inefficiency) {
             if n < opts.min_uncorrelated {
                 notes.push(few(n, g, Series::Dudl));
             }
@@ -51,16 +52,17 @@ pub(super) fn windows(
         if let Some(t) = ti {
             sel.push((Series::Dudl, &t[i]));
         }
-        for (series, s) in sel {
-            if let Some((first, last)) = drift(s, opts.drift_sigmas) {
-                notes.push(LegWarning::WindowDrift {
-                    state: w.state,
-                    source: source.clone(),
-                    series,
-                    first,
-                    last,
-                });
-            }
+        if let Some((series, (first, last))) = sel
+            .into_iter()
+            .find_map(|(series, s)| drift(s, opts.drift_sigmas).map(|d| (series, d)))
+        {
+            notes.push(LegWarning::WindowDrift {
+                state: w.state,
+                source: source.clone(),
+                series,
+                first,
+                last,
+            });
         }
     }
     identical
@@ -90,10 +92,13 @@ fn identical_frames(w: &WindowSamples) -> bool {
     })
 }
 
-/// Mean ± standard error of the first and last third of a selection's used
-/// frames, when they differ by more than `sigmas` combined standard errors.
+/// Mean ± standard error of the first and last third of a window's kept frames
+/// (after equilibration, before subsampling: a trend inflates the statistical
+/// inefficiency of the whole, and subsampling by it would leave too few frames to
+/// compare), when they differ by more than `sigmas` combined standard errors. Each
+/// third's standard error carries its own statistical inefficiency.
 fn drift(s: &Selection, sigmas: f64) -> Option<(DeltaG, DeltaG)> {
-    let x: Vec<f64> = s.rows.iter().map(|&r| s.series[r]).collect();
+    let x = &s.series[s.eq.start.min(s.series.len())..];
     let third = x.len() / 3;
     if third < 8 {
         return None;

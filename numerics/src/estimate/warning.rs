@@ -73,7 +73,7 @@ pub enum LegWarning {
         source: String,
         /// Which series.
         series: Series,
-        /// Mean ± standard error of the first third of the used frames (kT, or kT
+        /// Mean ± standard error of the first third of the kept frames (kT, or kT
         /// per unit λ for dU/dλ).
         first: DeltaG,
         /// The same for the last third.
@@ -192,7 +192,7 @@ impl LegWarning {
             } => {
                 let per = if *series == Series::Dudl { " per unit λ" } else { "" };
                 format!(
-                    "window of state {state} ({source}): {} drift: mean {}{per} over the first third of the used frames, {}{per} over the last third; the window is not at equilibrium: discard more of its start or run it longer",
+                    "window of state {state} ({source}): {} drift: mean {}{per} over the first third of the kept frames, {}{per} over the last third; the window is not at equilibrium: discard more of its start or run it longer",
                     series.describe(),
                     pm(first),
                     pm(last)

@@ -145,7 +145,8 @@ pub fn to_json(est: &LegEstimate, unit: EnergyUnit, read_s: f64) -> Value {
         "overlap": est.overlap,
         "min_adjacent_overlap": est.min_adjacent_overlap,
         "windows": est.windows,
-        "warnings": est.warnings,
+        "warnings": est.warnings_in(unit),
+        "unreliable": est.unreliable,
         "read_s": read_s,
     });
     if let Some(m) = &est.mbar {
@@ -221,9 +222,15 @@ fn table(est: &LegEstimate, unit: EnergyUnit) -> String {
             );
         }
     }
+    if !est.unreliable.is_empty() {
+        let _ = writeln!(s, "\nunreliable:");
+        for (m, why) in &est.unreliable {
+            let _ = writeln!(s, "  - {m}: {why}");
+        }
+    }
     if !est.warnings.is_empty() {
         let _ = writeln!(s, "\nwarnings:");
-        for w in &est.warnings {
+        for w in est.warnings_in(unit) {
             let _ = writeln!(s, "  - {w}");
         }
     }

@@ -267,6 +267,14 @@ fn inefficiencies_from(x: &[f64], starts: &[usize]) -> Vec<f64> {
 }
 
 /// The statistics of the series from frame `start` on.
+///
+/// # Examples
+///
+/// ```
+/// use legwork_numerics::estimate::correlation::at_start;
+/// let e = at_start(&[5.0, 1.0, 1.0, 1.0], 1);
+/// assert_eq!((e.start, e.inefficiency, e.effective), (1, 1.0, 3.0));
+/// ```
 pub fn at_start(x: &[f64], start: usize) -> Equilibrated {
     let rest = &x[start.min(x.len())..];
     let g = statistical_inefficiency(rest);
@@ -279,6 +287,13 @@ pub fn at_start(x: &[f64], start: usize) -> Equilibrated {
 
 /// Indices of an uncorrelated subsample of frames `start..n` with inefficiency `g`:
 /// every ⌈g⌉-th frame in effect (frame start + ⌊i·g⌋ for i = 0, 1, …).
+///
+/// # Examples
+///
+/// ```
+/// use legwork_numerics::estimate::correlation::subsample;
+/// assert_eq!(subsample(10, 20, 2.5), vec![10, 12, 15, 17]);
+/// ```
 pub fn subsample(start: usize, n: usize, g: f64) -> Vec<usize> {
     let g = g.max(1.0);
     let mut out = Vec::with_capacity(((n.saturating_sub(start)) as f64 / g) as usize + 1);

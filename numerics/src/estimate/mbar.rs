@@ -72,6 +72,10 @@ impl MbarSolution {
         self.f.len()
     }
     /// f_j − f_i and its standard error sqrt(Θ_ii + Θ_jj − 2Θ_ij).
+    ///
+    /// # Panics
+    ///
+    /// When `i` or `j` is not a state.
     pub fn difference(&self, i: usize, j: usize) -> (f64, f64) {
         let k = self.n_states();
         let t = |a: usize, b: usize| self.covariance[a * k + b];

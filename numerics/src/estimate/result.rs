@@ -159,6 +159,10 @@ pub struct LegEstimate {
 
 impl LegEstimate {
     /// MBAR's G(j) − G(i) (kT) and its standard error from the covariance.
+    ///
+    /// # Panics
+    ///
+    /// When `i` or `j` is not a state.
     pub fn mbar_difference(&self, i: usize, j: usize) -> Option<DeltaG> {
         let m = self.mbar.as_ref()?;
         let c = &m.covariance;

@@ -159,7 +159,6 @@ impl LegWarning {
         let f = EnergyUnit::Kt.factor_to(unit, temperature_k);
         let u = unit.as_str();
         let pm = |d: &DeltaG| format!("{:.3} ± {:.3} {u}", d.delta_g * f, d.sigma * f);
-        let list = |ms: &[Method]| ms.iter().map(|m| m.as_str()).collect::<Vec<_>>().join(", ");
         match self {
             LegWarning::Input { message } => message.clone(),
             LegWarning::NoDudl => {
@@ -207,28 +206,43 @@ impl LegWarning {
                 pm(first),
                 pm(last)
             ),
-            LegWarning::PoorOverlap {
-                from,
-                to,
-                lambda_from,
-                lambda_to,
-                overlap,
-                threshold,
-                unreliable,
-            } => {
-                let mut s = format!(
-                    "states {from} and {to} (λ {lambda_from} → {lambda_to}) overlap only {} (below {threshold}, common practice)",
-                    fmt_overlap(*overlap)
-                );
-                if !unreliable.is_empty() {
-                    s.push_str(&format!(
-                        "; too little for the error bars of {}, which are marked unreliable",
-                        list(unreliable)
-                    ));
-                }
-                s.push_str(": add a window between them or sample both longer");
-                s
+            LegWarning::PoorOverlap { .. } => self.overlap_message(),
+            LegWarning::Outlier { .. } | LegWarning::Disagree { .. } => {
+                self.disagreement_message(&pm)
             }
+        }
+    }
+
+    fn overlap_message(&self) -> String {
+        let LegWarning::PoorOverlap {
+            from,
+            to,
+            lambda_from,
+            lambda_to,
+            overlap,
+            threshold,
+            unreliable,
+        } = self
+        else {
+            unreachable!("called for PoorOverlap only")
+        };
+        let mut s = format!(
+            "states {from} and {to} (λ {lambda_from} → {lambda_to}) overlap only {} (below {threshold}, common practice)",
+            fmt_overlap(*overlap)
+        );
+        if !unreliable.is_empty() {
+            let names: Vec<&str> = unreliable.iter().map(|m| m.as_str()).collect();
+            s.push_str(&format!(
+                "; too little for the error bars of {}, which are marked unreliable",
+                names.join(", ")
+            ));
+        }
+        s.push_str(": add a window between them or sample both longer");
+        s
+    }
+
+    fn disagreement_message(&self, pm: &dyn Fn(&DeltaG) -> String) -> String {
+        match self {
             LegWarning::Outlier {
                 method,
                 value,
@@ -255,6 +269,7 @@ impl LegWarning {
                     p.join("; ")
                 )
             }
+            _ => unreachable!("called for Outlier and Disagree only"),
         }
     }
 }

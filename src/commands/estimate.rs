@@ -113,7 +113,7 @@ pub fn run(args: Args, _global: &Global) -> anyhow::Result<()> {
             read_s,
             m.solve_seconds,
             m.iterations,
-            crate::estimate::mbar::PASSES.load(std::sync::atomic::Ordering::Relaxed)
+            m.passes
         );
     }
     if args.json {
@@ -150,7 +150,8 @@ pub fn to_json(est: &LegEstimate, unit: EnergyUnit, read_s: f64) -> Value {
         "overlap": est.overlap,
         "min_adjacent_overlap": est.min_adjacent_overlap,
         "windows": est.windows,
-        "warnings": est.warnings,
+        "warnings": est.warnings_in(unit),
+        "unreliable": est.unreliable,
         "read_s": read_s,
     });
     if let Some(m) = &est.mbar {
@@ -227,9 +228,15 @@ fn table(est: &LegEstimate, unit: EnergyUnit) -> String {
             );
         }
     }
+    if !est.unreliable.is_empty() {
+        let _ = writeln!(s, "\nunreliable:");
+        for (m, why) in &est.unreliable {
+            let _ = writeln!(s, "  - {m}: {why}");
+        }
+    }
     if !est.warnings.is_empty() {
         let _ = writeln!(s, "\nwarnings:");
-        for w in &est.warnings {
+        for w in est.warnings_in(unit) {
             let _ = writeln!(s, "  - {w}");
         }
     }

@@ -24,6 +24,7 @@ mod estimate_calibration;
 mod estimate_command;
 mod estimate_demo;
 mod estimate_reference;
+mod estimate_warnings;
 mod expand;
 mod experiment;
 mod journal;

@@ -3,6 +3,10 @@
 
 #![allow(dead_code)]
 
+/// The calibration scenarios shared with the calibration benchmark.
+#[path = "../../../numerics/examples/calibration/scenarios.rs"]
+pub mod scenarios;
+
 use legwork::collect::{LegSamples, WindowSamples};
 use rand::SeedableRng;
 use rand_chacha::ChaCha8Rng;

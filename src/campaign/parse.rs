@@ -1344,7 +1344,7 @@ fn parse_restraint(ctx: &mut Ctx, node: &Node, what: &str) -> Option<Restraint> 
     let k_phi_a = get("k_phi_a", 0.0, f64::INFINITY);
     let k_phi_b = get("k_phi_b", 0.0, f64::INFINITY);
     let k_phi_c = get("k_phi_c", 0.0, f64::INFINITY);
-    Some(Restraint {
+    let r = Restraint {
         kind: kind?,
         r0: r0?,
         theta_a: theta_a?,
@@ -1355,7 +1355,32 @@ fn parse_restraint(ctx: &mut Ctx, node: &Node, what: &str) -> Option<Restraint> 
         k_phi_a: k_phi_a?,
         k_phi_b: k_phi_b?,
         k_phi_c: k_phi_c?,
-    })
+    };
+    // The numeric core's rule, the same one the cycle applies after the run.
+    let core = crate::cycle::BoreschRestraint {
+        r0: r.r0,
+        theta_a: r.theta_a,
+        theta_b: r.theta_b,
+        k_r: r.k_r,
+        k_theta_a: r.k_theta_a,
+        k_theta_b: r.k_theta_b,
+        k_phi_a: r.k_phi_a,
+        k_phi_b: r.k_phi_b,
+        k_phi_c: r.k_phi_c,
+    };
+    if let Err(e) = core.validate() {
+        let pos = e
+            .parameter()
+            .and_then(|p| f.get(p.field()))
+            .map_or(f.pos, |n| n.pos);
+        ctx.error(
+            pos,
+            format!("{w}: {e}"),
+            Some("force constants must be above 0 and angles strictly between 0 and 180 degrees; see 'Restraint corrections' in the README".into()),
+        );
+        return None;
+    }
+    Some(r)
 }
 
 /// A stage, where its name is, and each `after` entry with its position.

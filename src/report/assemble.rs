@@ -2,8 +2,10 @@
 
 use super::results::{LegReplica, MissingWork, Results, RESULTS_SCHEMA};
 use crate::collect::experiment::IC50_NOTE;
-use crate::cycle::{combine_edge, CampaignKind, CycleError, LegSpec, LegValue};
-use crate::network::stats::compare_all;
+use crate::cycle::{
+    combine_edge_directed, edge_directions, CampaignKind, CycleError, LegSpec, LegValue,
+};
+use crate::network::stats::compare_estimates;
 use crate::network::{annotate_edges, solve, LigandEstimate, Measured};
 use crate::network::{NetworkEdge, NetworkError};
 use crate::plan::Subject;
@@ -64,7 +66,7 @@ pub fn assemble(
             subjects.push(&l.subject);
         }
     }
-    let mut edges = Vec::new();
+    let mut parsed = Vec::new();
     for s in subjects {
         let subject = match info.kind {
             CampaignKind::Relative => {
@@ -78,6 +80,12 @@ pub fn assemble(
             }
             _ => Subject::Ligand { id: s.to_string() },
         };
+        parsed.push((s, subject));
+    }
+    // An edge whose reverse came first takes its constant corrections negated.
+    let directions = edge_directions(&parsed.iter().map(|p| p.1.clone()).collect::<Vec<_>>());
+    let mut edges = Vec::new();
+    for ((s, subject), direction) in parsed.into_iter().zip(directions) {
         let values: Vec<LegValue> = legs
             .iter()
             .filter(|l| l.subject == s)
@@ -88,8 +96,19 @@ pub fn assemble(
                 sigma: l.sigma,
             })
             .collect();
-        match combine_edge(&subject, &info.legs, &values, info.temperature_k, info.unit) {
-            Ok(e) => edges.push(e),
+        let closed = combine_edge_directed(
+            &subject,
+            direction,
+            &info.legs,
+            &values,
+            info.temperature_k,
+            info.unit,
+        );
+        match closed {
+            Ok(e) => {
+                warnings.extend(e.warnings.iter().cloned());
+                edges.push(e);
+            }
             Err(CycleError::MissingLeg { subject, leg }) => warnings.push(format!(
                 "{subject}: leg '{leg}' has no finished replica yet, so this {} is left out",
                 if info.kind == CampaignKind::Relative {
@@ -146,6 +165,7 @@ pub fn assemble(
                     sigma: e.sigma,
                     measured: measured_of(&e.ligand_a),
                     component: 0,
+                    anchor: None,
                 })
                 .collect(),
             Vec::new(),
@@ -154,10 +174,8 @@ pub fn assemble(
         ),
     };
 
-    let statistics = (!measured.is_empty()).then(|| {
-        let pairs: Vec<(String, f64)> = ligands.iter().map(|l| (l.ligand.clone(), l.dg)).collect();
-        compare_all(&pairs, &edges, &measured, info.seed)
-    });
+    let statistics =
+        (!measured.is_empty()).then(|| compare_estimates(&ligands, &edges, &measured, info.seed));
     if measured
         .iter()
         .any(|m| m.kind == crate::network::MeasuredKind::Ic50)

@@ -347,7 +347,7 @@ pub fn render(r: &Results) -> Result<String, PlotError> {
             i + 1,
             esc(&l.ligand),
             f2(l.dg),
-            f2(l.sigma),
+            if l.anchor.is_some() { "reference".to_string() } else { f2(l.sigma) },
             o2(l.measured),
             o2(l.measured.map(|m| l.dg - m))
         );

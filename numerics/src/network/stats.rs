@@ -2,11 +2,12 @@
 //! seeded bootstrap 95% interval.
 
 use super::experiment::Measured;
-use super::solve::NetworkResult;
+use super::solve::{Anchor, LigandEstimate, NetworkResult};
 use crate::cycle::EdgeResult;
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 use serde::{Deserialize, Serialize};
+use std::collections::BTreeMap;
 
 /// How many bootstrap resamples [`compare`] draws.
 pub const BOOTSTRAP_RESAMPLES: usize = 2000;
@@ -184,15 +185,155 @@ fn quantile(sorted: &[f64], q: f64) -> Option<f64> {
 /// Per-ligand and per-edge comparison with experiment.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct Comparison {
-    /// Network ΔG against measured ΔG, over ligands with a measurement.
+    /// Network ΔG against measured ΔG, over measured ligands that are not
+    /// anchored (`ligands.n` says how many).
     pub ligands: Stats,
-    /// Each edge's own ΔΔG against measured ΔG(b) − ΔG(a), over edges with both ends measured.
+    /// Each edge's own ΔΔG against measured ΔG(b) − ΔG(a), over edges with both
+    /// ends measured (`edges.n` says how many).
     pub edges: Stats,
+    /// Measured ligands left out of `ligands` because their ΔG is fixed by their
+    /// own measurement (the only measured ligand of their connected part).
+    #[serde(default)]
+    pub anchored: Vec<String>,
 }
 
-/// Builds the per-ligand and per-edge comparison. `ligand_dg` pairs ligand ids
-/// with predicted ΔG (from the network, or from absolute cycles).
+/// Builds the per-ligand and per-edge comparison from the network's (or the
+/// absolute cycles') per-ligand estimates: ligands with an [`Anchor`] of kind
+/// [`Anchor::Measured`] are left out of the per-ligand statistics and listed in
+/// [`Comparison::anchored`]. Per-ligand statistics use seed `seed`, per-edge
+/// ones `seed + 1`.
+///
+/// # Panics
+///
+/// Never (the pairs are built here, so they always match up).
+///
+/// ```
+/// use legwork_numerics::network::stats::compare_estimates;
+/// use legwork_numerics::network::{solve, Measured, MeasuredKind, NetworkEdge};
+/// let e = |a: &str, b: &str, ddg| NetworkEdge { a: a.into(), b: b.into(), ddg, sigma: 0.2 };
+/// let m = |l: &str, dg| Measured {
+///     ligand: l.into(), dg, kind: MeasuredKind::Dg, value: dg, unit: "kcal/mol".into(), line: 2,
+/// };
+/// // Two parts: {x, y, z} with two measurements, {u, v} with one (u is anchored).
+/// let measured = [m("x", -8.0), m("y", -9.1), m("u", -7.0)];
+/// let fit = solve(&[e("x", "y", -1.0), e("y", "z", 0.5), e("u", "v", -0.4)], &measured, None)?;
+/// let c = compare_estimates(&fit.ligands, &[], &measured, 7);
+/// assert_eq!(c.ligands.n, 2);
+/// assert_eq!(c.anchored, ["u"]);
+/// # Ok::<(), legwork_numerics::network::NetworkError>(())
+/// ```
+pub fn compare_estimates(
+    ligands: &[LigandEstimate],
+    edges: &[EdgeResult],
+    measured: &[Measured],
+    seed: u64,
+) -> Comparison {
+    let anchored: Vec<String> = ligands
+        .iter()
+        .filter(|l| l.anchor == Some(Anchor::Measured))
+        .filter(|l| measured.iter().any(|m| m.ligand == l.ligand))
+        .map(|l| l.ligand.clone())
+        .collect();
+    let pairs: Vec<(String, f64)> = ligands
+        .iter()
+        .filter(|l| !anchored.contains(&l.ligand))
+        .map(|l| (l.ligand.clone(), l.dg))
+        .collect();
+    let mut c = compare_pairs(&pairs, edges, measured, seed);
+    c.anchored = anchored;
+    c
+}
+
+/// Builds the per-ligand and per-edge comparison from (ligand, predicted ΔG)
+/// pairs. Anchored ligands are found from `edges`: in a relative network, a
+/// connected part (over the edges with a second ligand) with exactly one
+/// measured ligand has that ligand's ΔG fixed to its measurement by the
+/// network's offset ([`crate::network::solve`]), so it is left out of the
+/// per-ligand statistics and listed in [`Comparison::anchored`]. Prefer
+/// [`compare_estimates`] when the [`LigandEstimate`]s are at hand: it uses the
+/// network's own anchors, which also hold when some edges were left out of the
+/// fit.
+///
+/// # Panics
+///
+/// Never.
+///
+/// ```
+/// use legwork_numerics::network::stats::compare_all;
+/// use legwork_numerics::network::{Measured, MeasuredKind};
+/// let m = |l: &str, dg| Measured {
+///     ligand: l.into(), dg, kind: MeasuredKind::Dg, value: dg, unit: "kcal/mol".into(), line: 2,
+/// };
+/// // Absolute cycles (no edges between ligands): nothing is anchored.
+/// let pred = [("x".to_string(), -8.2), ("y".to_string(), -9.0)];
+/// let c = compare_all(&pred, &[], &[m("x", -8.0), m("y", -9.5)], 1);
+/// assert_eq!(c.ligands.n, 2);
+/// assert!(c.anchored.is_empty());
+/// ```
 pub fn compare_all(
+    ligand_dg: &[(String, f64)],
+    edges: &[EdgeResult],
+    measured: &[Measured],
+    seed: u64,
+) -> Comparison {
+    let anchored = anchored_by_edges(edges, measured);
+    let pairs: Vec<(String, f64)> = ligand_dg
+        .iter()
+        .filter(|(id, _)| !anchored.contains(id))
+        .cloned()
+        .collect();
+    let mut c = compare_pairs(&pairs, edges, measured, seed);
+    c.anchored = anchored
+        .into_iter()
+        .filter(|a| ligand_dg.iter().any(|(id, _)| id == a))
+        .collect();
+    c
+}
+
+/// The measured ligands that are the only measured ligand of their connected
+/// part of the relative network formed by `edges`.
+fn anchored_by_edges<'a>(edges: &'a [EdgeResult], measured: &[Measured]) -> Vec<String> {
+    let mut part: BTreeMap<&'a str, usize> = BTreeMap::new();
+    let mut parent: Vec<usize> = Vec::new();
+    fn find(p: &mut [usize], mut x: usize) -> usize {
+        while p[x] != x {
+            p[x] = p[p[x]];
+            x = p[x];
+        }
+        x
+    }
+    for e in edges {
+        let Some(b) = e.ligand_b.as_deref() else {
+            continue;
+        };
+        let mut id = |l: &'a str| -> usize {
+            *part.entry(l).or_insert_with(|| {
+                parent.push(parent.len());
+                parent.len() - 1
+            })
+        };
+        let (x, y) = (id(e.ligand_a.as_str()), id(b));
+        let (rx, ry) = (find(&mut parent, x), find(&mut parent, y));
+        parent[rx.max(ry)] = rx.min(ry);
+    }
+    let mut count: BTreeMap<usize, Vec<&str>> = BTreeMap::new();
+    for m in measured {
+        if let Some(&i) = part.get(m.ligand.as_str()) {
+            count
+                .entry(find(&mut parent, i))
+                .or_default()
+                .push(m.ligand.as_str());
+        }
+    }
+    count
+        .into_values()
+        .filter(|v| v.len() == 1)
+        .map(|v| v[0].to_string())
+        .collect()
+}
+
+/// The comparison over the given pairs (no anchors).
+fn compare_pairs(
     ligand_dg: &[(String, f64)],
     edges: &[EdgeResult],
     measured: &[Measured],
@@ -213,6 +354,7 @@ pub fn compare_all(
     Comparison {
         ligands: compare(&lp, &lm, seed),
         edges: compare(&ep, &em, seed.wrapping_add(1)),
+        anchored: Vec::new(),
     }
 }
 

@@ -467,6 +467,25 @@ fn components(n: usize, edges: &[IndexedEdge]) -> Vec<usize> {
 /// Copies the network's fit onto the edge results (fitted value, residual) and
 /// adds the residual, closure and hysteresis flags. Edges are matched by their
 /// ligand pair; `edges` and `fit` normally come from the same list in the same order.
+///
+/// ```
+/// use legwork_numerics::cycle::{combine_edge, EdgeFlag, LegSpec, LegValue, Subject};
+/// use legwork_numerics::network::{annotate_edges, solve, NetworkEdge};
+/// use legwork_numerics::units::EnergyUnit;
+/// let leg = [LegSpec { name: "l".into(), sign: 1.0, correction: 0.0, restraint: None }];
+/// let close = |a: &str, b: &str, dg| {
+///     let v = [LegValue { leg: "l".into(), replica: 1, dg, sigma: 0.1 }];
+///     let s = Subject::Edge { a: a.into(), b: b.into() };
+///     combine_edge(&s, &leg, &v, 298.15, EnergyUnit::KcalPerMol)
+/// };
+/// // A triangle that misses closure by 1.0 (10σ).
+/// let mut edges = vec![close("x", "y", 1.0)?, close("y", "z", 1.0)?, close("x", "z", 3.0)?];
+/// let net: Vec<NetworkEdge> = edges.iter().map(NetworkEdge::from).collect();
+/// let fit = solve(&net, &[], None)?;
+/// annotate_edges(&mut edges, &fit);
+/// assert!(edges.iter().all(|e| e.residual.is_some() && e.flags.contains(&EdgeFlag::Closure)));
+/// # Ok::<(), Box<dyn std::error::Error>>(())
+/// ```
 pub fn annotate_edges(edges: &mut [EdgeResult], fit: &NetworkResult) {
     for (i, e) in edges.iter_mut().enumerate() {
         let Some(b) = e.ligand_b.as_deref() else {

@@ -46,7 +46,14 @@ pub struct Stats {
     pub resamples: usize,
 }
 
-/// Root-mean-square of pred − meas (`None` when empty).
+/// Root-mean-square of pred − meas (`None` when empty; extra values of the
+/// longer slice are ignored).
+///
+/// ```
+/// use legwork_numerics::network::stats::rmse;
+/// assert_eq!(rmse(&[1.0, 3.0], &[2.0, 2.0]), Some(1.0));
+/// assert_eq!(rmse(&[], &[]), None);
+/// ```
 pub fn rmse(pred: &[f64], meas: &[f64]) -> Option<f64> {
     (!pred.is_empty()).then(|| {
         (pred
@@ -59,7 +66,13 @@ pub fn rmse(pred: &[f64], meas: &[f64]) -> Option<f64> {
     })
 }
 
-/// Mean of |pred − meas| (`None` when empty).
+/// Mean of |pred − meas| (`None` when empty; extra values of the longer slice
+/// are ignored).
+///
+/// ```
+/// use legwork_numerics::network::stats::mue;
+/// assert_eq!(mue(&[1.0, 4.0], &[2.0, 2.0]), Some(1.5));
+/// ```
 pub fn mue(pred: &[f64], meas: &[f64]) -> Option<f64> {
     (!pred.is_empty()).then(|| {
         pred.iter()
@@ -71,6 +84,12 @@ pub fn mue(pred: &[f64], meas: &[f64]) -> Option<f64> {
 }
 
 /// Pearson's r; `None` for fewer than 2 pairs or no spread in either.
+///
+/// ```
+/// use legwork_numerics::network::stats::pearson;
+/// assert_eq!(pearson(&[1.0, 2.0, 3.0], &[2.0, 4.0, 6.0]), Some(1.0));
+/// assert_eq!(pearson(&[1.0, 2.0, 3.0], &[5.0, 5.0, 5.0]), None);
+/// ```
 pub fn pearson(x: &[f64], y: &[f64]) -> Option<f64> {
     let n = x.len();
     if n < 2 {
@@ -90,6 +109,13 @@ pub fn pearson(x: &[f64], y: &[f64]) -> Option<f64> {
 /// Kendall's τ_b: (concordant − discordant) / √((n₀ − n₁)(n₀ − n₂)), with n₀ the
 /// number of pairs and n₁, n₂ the pairs tied in x and in y. O(n²), fine for the
 /// series sizes legwork sees. `None` when either variable is constant.
+///
+/// ```
+/// use legwork_numerics::network::stats::kendall_tau;
+/// // 3 pairs: (1,2) concordant, (1,3) concordant, (2,3) discordant → (2 − 1)/3.
+/// let t = kendall_tau(&[1.0, 2.0, 3.0], &[1.0, 3.0, 2.0]).unwrap();
+/// assert!((t - 1.0 / 3.0).abs() < 1e-12);
+/// ```
 pub fn kendall_tau(x: &[f64], y: &[f64]) -> Option<f64> {
     let n = x.len();
     let (mut s, mut tx, mut ty, mut n0) = (0i64, 0i64, 0i64, 0i64);
@@ -114,6 +140,18 @@ pub fn kendall_tau(x: &[f64], y: &[f64]) -> Option<f64> {
 }
 
 /// Compares predictions with measurements ([`BOOTSTRAP_RESAMPLES`] resamples).
+///
+/// # Panics
+///
+/// When `pred` and `meas` differ in length.
+///
+/// ```
+/// use legwork_numerics::network::stats::compare;
+/// let s = compare(&[-8.0, -9.2, -7.1], &[-8.4, -9.0, -7.5], 1);
+/// assert_eq!(s.n, 3);
+/// let rmse = s.rmse.unwrap();
+/// assert!(rmse.low <= rmse.value && rmse.value <= rmse.high);
+/// ```
 pub fn compare(pred: &[f64], meas: &[f64], seed: u64) -> Stats {
     compare_with(pred, meas, seed, BOOTSTRAP_RESAMPLES)
 }
@@ -121,6 +159,18 @@ pub fn compare(pred: &[f64], meas: &[f64], seed: u64) -> Stats {
 /// Compares with a chosen number of bootstrap resamples. Pairs are resampled
 /// together; a resample where a statistic is undefined (e.g. all values equal)
 /// is left out of that statistic's interval.
+///
+/// # Panics
+///
+/// When `pred` and `meas` differ in length.
+///
+/// ```
+/// use legwork_numerics::network::stats::compare_with;
+/// let a = compare_with(&[1.0, 2.0, 3.5], &[1.1, 2.3, 3.0], 42, 200);
+/// let b = compare_with(&[1.0, 2.0, 3.5], &[1.1, 2.3, 3.0], 42, 200);
+/// assert_eq!(a, b); // seeded
+/// assert_eq!(a.resamples, 200);
+/// ```
 pub fn compare_with(pred: &[f64], meas: &[f64], seed: u64, resamples: usize) -> Stats {
     assert_eq!(pred.len(), meas.len(), "pred and meas must pair up");
     let n = pred.len();
@@ -360,6 +410,16 @@ fn compare_pairs(
 
 impl NetworkResult {
     /// (ligand, ΔG) pairs, for [`compare_all`].
+    ///
+    /// ```
+    /// use legwork_numerics::network::{solve, NetworkEdge};
+    /// let e = NetworkEdge { a: "x".into(), b: "y".into(), ddg: 1.5, sigma: 0.2 };
+    /// let fit = solve(&[e], &[], Some("x"))?;
+    /// let g = fit.ligand_dg();
+    /// assert_eq!((g[0].0.as_str(), g[1].0.as_str()), ("x", "y"));
+    /// assert!(g[0].1 == 0.0 && (g[1].1 - 1.5).abs() < 1e-12);
+    /// # Ok::<(), legwork_numerics::network::NetworkError>(())
+    /// ```
     pub fn ligand_dg(&self) -> Vec<(String, f64)> {
         self.ligands
             .iter()

@@ -321,6 +321,10 @@ pub fn render(r: &Results) -> Result<String, PlotError> {
         stats_row(&mut o, "ligands (ΔG)", &s.ligands);
         stats_row(&mut o, "edges (ΔΔG)", &s.edges);
         o.push_str("</table>\n");
+        if !s.anchored.is_empty() {
+            let names: Vec<String> = s.anchored.iter().map(|a| esc(a)).collect();
+            let _ = writeln!(o, "<p class=\"small\">Not scored: {} (the only measured ligand of its part of the network, so its ΔG equals its measurement by construction).</p>", names.join(", "));
+        }
     }
 
     let offset = match r.offsets.as_slice() {

@@ -165,38 +165,20 @@ pub(super) fn restraint(ctx: &mut Ctx, node: &Node, what: &str) -> Option<Boresc
     (kind_ok && ok).then_some(r)
 }
 
+/// The restraint's parameters checked with the core's own rule
+/// (`BoreschRestraint::validate`), the one `collect` applies, so a restraint
+/// `check` accepts is one the correction can be computed for.
 fn restraint_in_range(ctx: &mut Ctx, node: &Node, r: &BoreschRestraint) -> bool {
-    let checks = [
-        ("r0", r.r0, 0.0, f64::INFINITY),
-        ("theta_a", r.theta_a, 0.0, 180.0),
-        ("theta_b", r.theta_b, 0.0, 180.0),
-        ("k_r", r.k_r, 0.0, f64::INFINITY),
-        ("k_theta_a", r.k_theta_a, 0.0, f64::INFINITY),
-        ("k_theta_b", r.k_theta_b, 0.0, f64::INFINITY),
-        ("k_phi_a", r.k_phi_a, 0.0, f64::INFINITY),
-        ("k_phi_b", r.k_phi_b, 0.0, f64::INFINITY),
-        ("k_phi_c", r.k_phi_c, 0.0, f64::INFINITY),
-    ];
-    let mut ok = true;
-    for (key, v, lo, hi) in checks {
-        if v > lo && v < hi {
-            continue;
-        }
-        ok = false;
-        let pos = child(node, key).map_or(node.pos, |n| n.pos);
-        let hint = if key.starts_with("k_") {
-            "force constants must be positive: a zero one leaves that degree of freedom free, and the analytic correction diverges".to_string()
-        } else if hi < f64::INFINITY {
-            "reference angles lie strictly between 0 and 180 degrees (sin θ = 0 at the ends)"
-                .to_string()
-        } else {
-            "the reference distance must be positive".to_string()
-        };
-        ctx.error(
-            pos,
-            format!("{key} = {v} is outside ({lo}, {hi})"),
-            Some(hint),
-        );
-    }
-    ok
+    let Err(e) = r.validate() else {
+        return true;
+    };
+    let key = e.parameter().map(|p| p.field());
+    let pos = key.and_then(|k| child(node, k)).map_or(node.pos, |n| n.pos);
+    let hint = match key {
+        Some(k) if k.starts_with("k_") => "force constants must be positive: a zero one leaves that degree of freedom free, and the correction is not defined",
+        Some(k) if k.starts_with("theta") => "reference angles lie strictly between 0 and 180 degrees (sin θ = 0 at the ends)",
+        _ => "the reference distance must be positive",
+    };
+    ctx.error(pos, format!("restraint: {e}"), Some(hint.to_string()));
+    false
 }

@@ -141,6 +141,44 @@ pub fn load_or_exit(
     }
 }
 
+/// Reads the measured-affinities file, if the campaign names one, with the same
+/// reader `collect` uses: a bad row is exit code 2 here, before anything runs.
+/// Measured ligands that are not in the campaign are a warning.
+fn check_experiment(c: &Campaign, json: bool) -> anyhow::Result<()> {
+    let Some(path) = &c.experiment else {
+        return Ok(());
+    };
+    match crate::collect::experiment::read_measured(path, c.temperature_k, c.unit) {
+        Ok(measured) => {
+            let unknown: Vec<&str> = measured
+                .iter()
+                .map(|m| m.ligand.as_str())
+                .filter(|l| !c.ligands.iter().any(|x| x.id == *l))
+                .collect();
+            if !unknown.is_empty() && !json {
+                eprintln!(
+                    "warning: {}: measured ligands that are not in the campaign (ignored): {}",
+                    path.display(),
+                    unknown.join(", ")
+                );
+            }
+            Ok(())
+        }
+        Err(e) => {
+            if json {
+                println!(
+                    "{}",
+                    serde_json::json!({"ok": false, "experiment_error": e.to_string()})
+                );
+            }
+            Err(Exit::bad_input(format!(
+                "error: {e}\nhint: each row is ligand,kind,value,unit with kind dg (unit kcal/mol or kJ/mol) or ki, kd, ic50 (unit pM, nM, uM, mM or M); see 'Measured affinities' in the README"
+            ))
+            .into())
+        }
+    }
+}
+
 /// Runs `legwork check`.
 pub fn run(args: Args, _global: &Global) -> anyhow::Result<()> {
     let loaded = load_or_exit(&args.file, args.root, args.json)?;
@@ -169,6 +207,7 @@ pub fn run(args: Args, _global: &Global) -> anyhow::Result<()> {
         }
         return Err(Exit::bad_input(text.join("\n")).into());
     }
+    check_experiment(c, args.json)?;
     let s = summarise(c, &p, loaded.warnings);
     if args.json {
         let mut v = serde_json::to_value(&s)?;

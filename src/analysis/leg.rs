@@ -59,7 +59,12 @@ impl LegReplica {
             windows: window_summaries(est, f),
             ti,
             convergence,
-            warnings: est.warnings.clone(),
+            // In the campaign's unit, like every other number on the page.
+            warnings: if est.warning_details.len() == est.warnings.len() {
+                est.warnings_in(unit)
+            } else {
+                est.warnings.clone()
+            },
         })
     }
 }

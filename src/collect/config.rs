@@ -360,8 +360,12 @@ pub fn load_reader_file(path: &std::path::Path) -> Result<ReaderConfig, String> 
     };
     crate::campaign::de::from_node(section, "reader").map_err(|e| {
         let pos = e.pos.unwrap_or(section.pos);
+        let hint = e
+            .hint()
+            .map(|h| format!("{h}; "))
+            .unwrap_or_default();
         format!(
-            "{}:{}:{}: not a reader configuration: {}; see README *Reading engine output*",
+            "{}:{}:{}: not a reader configuration: {}\nhint: {hint}see README *Reading engine output*",
             path.display(),
             pos.line,
             pos.col,

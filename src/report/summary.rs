@@ -162,7 +162,10 @@ fn missing(r: &Results, out: &mut dyn Write) -> io::Result<()> {
     Ok(())
 }
 
-/// Campaign warnings and the count of the legs' own.
+/// How many leg replicas with warnings the summary names before it counts.
+const LEGS_NAMED: usize = 3;
+
+/// Campaign warnings and the count of the legs' own, naming the first legs.
 fn warnings(r: &Results, out: &mut dyn Write) -> io::Result<()> {
     let leg_warnings: usize = r.legs.iter().map(|l| l.warnings.len()).sum();
     if r.warnings.is_empty() && leg_warnings == 0 {
@@ -173,9 +176,26 @@ fn warnings(r: &Results, out: &mut dyn Write) -> io::Result<()> {
         writeln!(out, "  - {w}")?;
     }
     if leg_warnings > 0 {
+        let with: Vec<String> = r
+            .legs
+            .iter()
+            .filter(|l| !l.warnings.is_empty())
+            .map(|l| format!("{}/{}/r{}", l.subject, l.leg, l.replica))
+            .collect();
+        let shown = with
+            .iter()
+            .take(LEGS_NAMED)
+            .cloned()
+            .collect::<Vec<_>>()
+            .join(", ");
+        let more = match with.len().saturating_sub(LEGS_NAMED) {
+            0 => String::new(),
+            n => format!(" and {n} more"),
+        };
         writeln!(
             out,
-            "  - {leg_warnings} estimator warning(s) on individual legs (see the report)"
+            "  - {leg_warnings} estimator warning(s) on {} leg replica(s): {shown}{more} (each named in the report)",
+            with.len()
         )?;
     }
     Ok(())

@@ -248,7 +248,13 @@ fn a_zero_force_constant_is_refused_before_the_campaign_runs() {
         "    replicas: 1\n",
         "    replicas: 1\n    restraint:\n      kind: boresch\n      r0: 5.0\n      theta_a: 90\n      theta_b: 90\n      k_r: 0\n      k_theta_a: 10\n      k_theta_b: 10\n      k_phi_a: 10\n      k_phi_b: 10\n      k_phi_c: 10\n",
     );
-    let d = assert_error(&yaml, "campaign.yaml", 21, "k_r = 0 is outside (0, inf)");
+    // The core's own rule (`BoreschRestraint::validate`), the one collect applies.
+    let d = assert_error(
+        &yaml,
+        "campaign.yaml",
+        21,
+        "k_r = 0 kcal/mol/Å²: a force constant must be a finite number above 0",
+    );
     assert!(d.hint.unwrap().contains("must be positive"));
     let d = assert_error(
         &yaml.replace("      k_r: 0\n", "      k_rr: 10\n"),

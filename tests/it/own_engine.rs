@@ -407,7 +407,8 @@ fn estimate_accepts_a_reader_configuration() {
     );
     assert_eq!(out.status.code(), Some(2));
     assert!(
-        text(&out).contains("bad.yaml: not a reader configuration"),
+        text(&out).contains("bad.yaml:1:9: not a reader configuration")
+            && text(&out).contains("did you mean 'columns'?"),
         "{}",
         text(&out)
     );

@@ -219,6 +219,19 @@ fn terminal_summary_ranks_ligands_and_lists_worst_edges_and_warnings() {
     assert!(text.contains("Warnings:"));
     assert!(text.contains("RMSE"));
     assert!(text.contains("Not finished"));
+    // The summary names the legs with estimator warnings, not just a count.
+    let warned: Vec<String> = r
+        .legs
+        .iter()
+        .filter(|l| !l.warnings.is_empty())
+        .map(|l| format!("{}/{}/r{}", l.subject, l.leg, l.replica))
+        .collect();
+    assert!(!warned.is_empty(), "the fixture has legs with warnings");
+    assert!(
+        text.contains(&warned[0]),
+        "the first leg with warnings ({}) is named:\n{text}",
+        warned[0]
+    );
 }
 
 #[test]

@@ -105,6 +105,20 @@ fn looks_transient(stderr: &str) -> bool {
     TRANSIENT.iter().any(|t| s.contains(t))
 }
 
+impl RunError {
+    /// Whether the failure may be the scheduler's passing state (a timeout, a
+    /// busy or unreachable controller, a command killed by a signal) rather than
+    /// a refusal of the request. For a submission this means "it may or may not
+    /// have been taken".
+    pub fn is_transient(&self) -> bool {
+        match self {
+            RunError::Timeout { .. } => true,
+            RunError::Failed { stderr, code, .. } => looks_transient(stderr) || code.is_none(),
+            RunError::Spawn { .. } => false,
+        }
+    }
+}
+
 /// Quotes one argument for the log so the line can be pasted into a shell.
 fn quote(arg: &str) -> String {
     if !arg.is_empty()
@@ -132,6 +146,32 @@ impl Runner {
     /// Runs `program args…`, retrying transient failures; Ok only on exit 0.
     pub fn run(&self, program: &str, args: &[String]) -> Result<Output, RunError> {
         self.run_in(program, args, None)
+    }
+
+    /// Runs `program args…` exactly once, whatever the failure: for a command
+    /// that changes the scheduler (a submission), where a retry after an
+    /// ambiguous failure could do it twice. The caller resolves the ambiguity
+    /// (see `state::submit_once`).
+    pub fn run_once(&self, program: &str, args: &[String]) -> Result<Output, RunError> {
+        Runner {
+            attempts: 1,
+            ..self.clone()
+        }
+        .run_in(program, args, None)
+    }
+
+    /// As [`Runner::run_once`] with standard input read from a file.
+    pub fn run_once_stdin(
+        &self,
+        program: &str,
+        args: &[String],
+        stdin: &std::path::Path,
+    ) -> Result<Output, RunError> {
+        Runner {
+            attempts: 1,
+            ..self.clone()
+        }
+        .run_in(program, args, Some(stdin))
     }
 
     /// As [`Runner::run`] with standard input read from a file (`bsub < script`).
@@ -162,13 +202,7 @@ impl Runner {
             match self.once(program, args, stdin, &line) {
                 Ok(out) => return Ok(out),
                 Err(e) => {
-                    let transient = match &e {
-                        RunError::Timeout { .. } => true,
-                        RunError::Failed { stderr, code, .. } => {
-                            looks_transient(stderr) || code.is_none()
-                        }
-                        RunError::Spawn { .. } => false,
-                    };
+                    let transient = e.is_transient();
                     if !transient || attempt == attempts {
                         if let RunError::Timeout { .. } = e {
                             return Err(RunError::Timeout {
@@ -205,12 +239,21 @@ impl Runner {
             .stdout(Stdio::piped())
             .stderr(Stdio::piped());
         // A command in flight dies with legwork rather than finishing behind the
-        // back of the next legwork (which reconciles by job name instead).
+        // back of the next legwork (which reconciles by job name instead). The
+        // death signal only covers a parent that dies after it is set: one killed
+        // between fork and prctl has already handed the child to init, which the
+        // parent id shows, and the child then never execs.
         {
             use std::os::unix::process::CommandExt;
+            let parent = nix::unistd::getpid();
             unsafe {
-                cmd.pre_exec(|| {
+                cmd.pre_exec(move || {
                     nix::sys::prctl::set_pdeathsig(nix::sys::signal::Signal::SIGKILL)?;
+                    if nix::unistd::getppid() != parent {
+                        return Err(std::io::Error::other(
+                            "legwork ended before the command started",
+                        ));
+                    }
                     Ok(())
                 });
             }

@@ -11,16 +11,18 @@ pub mod journal;
 pub mod lock;
 pub mod markers;
 pub mod ops;
+pub mod outage;
 pub mod record;
 pub mod selection;
+pub mod submit_once;
 pub mod summary;
 mod tracker;
 
 pub use journal::{Event, Journal, JournalError};
 pub use lock::{CampaignLock, LockError};
 pub use ops::{
-    cancel, poll, reconcile, rescan, resume, submit_ready, watch_until_settled, CancelSummary,
-    PollSummary, ResumeSummary, Settled, SubmitSummary,
+    cancel, poll, reconcile, rescan, resume, submit_ready, submit_ready_within,
+    watch_until_settled, CancelSummary, PollSummary, ResumeSummary, Settled, SubmitSummary,
 };
 pub use record::{
     FailureKind, SubmissionRecord, SubmissionStatus, SubmittedTask, TaskRecord, TaskState,
@@ -234,6 +236,19 @@ pub struct Context<'a> {
 pub trait Clock: Sync {
     /// Now.
     fn now(&self) -> chrono::DateTime<chrono::Utc>;
+
+    /// Waits `d` (a scheduler outage's back-off); a test clock advances instead.
+    /// Returns early when Ctrl-C came.
+    fn sleep(&self, d: std::time::Duration) {
+        let end = std::time::Instant::now() + d;
+        while !interrupt::interrupted() {
+            let now = std::time::Instant::now();
+            if now >= end {
+                break;
+            }
+            std::thread::sleep((end - now).min(std::time::Duration::from_millis(50)));
+        }
+    }
 }
 
 /// The machine's clock.

@@ -20,6 +20,10 @@ pub struct SubmitSummary {
     pub tasks: usize,
     /// Ready tasks held back by `scheduler.max_queued`.
     pub held_back: usize,
+    /// Tasks whose submission is left for the next round: it came back
+    /// ambiguous and could not be resolved yet, or the time for this round's
+    /// submissions was spent (so polling goes on while a controller is slow).
+    pub deferred: usize,
 }
 
 /// What [`poll`] saw.
@@ -145,7 +149,22 @@ pub fn submit_ready(
     ctx: &Context,
     sel: &super::Selection,
 ) -> Result<SubmitSummary, StateError> {
+    submit_ready_within(state, sched, ctx, sel, None)
+}
+
+/// As [`submit_ready`], but starts no new submission once `budget` has passed
+/// (the rest waits for the next round, so a slow controller does not stall the
+/// polls of `watch`).
+pub fn submit_ready_within(
+    state: &mut CampaignState,
+    sched: &mut dyn Scheduler,
+    ctx: &Context,
+    sel: &super::Selection,
+    time_budget: Option<Duration>,
+) -> Result<SubmitSummary, StateError> {
     reconcile(state, sched)?;
+    let started = Instant::now();
+    let mut stalled = false;
     let mut summary = SubmitSummary::default();
     let live = state
         .data
@@ -168,6 +187,11 @@ pub fn submit_ready(
         if chosen.is_empty() {
             continue;
         }
+        let spent = time_budget.is_some_and(|b| summary.submissions > 0 && started.elapsed() >= b);
+        if stalled || spent {
+            summary.deferred += chosen.len();
+            continue;
+        }
         let wrapper_path = match &wrapper {
             Some(w) => w,
             None => wrapper.insert(script::install_wrapper(&state.root)?),
@@ -181,7 +205,12 @@ pub fn submit_ready(
             &ctx.config.options,
             wrapper_path,
         )?;
-        submit_one(state, sched, &submission, intent)?;
+        if !submit_one(state, sched, &submission, intent)? {
+            summary.deferred += chosen.len();
+            // The scheduler is struggling: the rest waits for the next round.
+            stalled = true;
+            continue;
+        }
         summary.submissions += 1;
         summary.tasks += chosen.len();
         budget -= chosen.len();
@@ -317,14 +346,18 @@ fn build_submission(
 }
 
 /// Journals `intent` (fsynced: a crash from here on is resolved by job name),
-/// then submits, then journals the job id — or the abandonment, returning the
-/// scheduler's error.
+/// then submits exactly once ([`super::submit_once`]), then journals the job id
+/// — or the abandonment of a submission the scheduler certainly did not take.
+/// A refusal is returned as the scheduler's error; false means the outcome is
+/// left for the next round (unresolved, or not taken while the scheduler
+/// answers only with transient failures).
 fn submit_one(
     state: &mut CampaignState,
     sched: &mut dyn Scheduler,
     submission: &Submission,
     intent: Event,
-) -> Result<(), StateError> {
+) -> Result<bool, StateError> {
+    use super::submit_once::{ambiguous, submit_exactly_once, SubmitOutcome};
     let Event::Intent { sub, .. } = intent else {
         unreachable!("build_submission makes an intent")
     };
@@ -332,20 +365,29 @@ fn submit_one(
         .map_err(|e| scheduler::SchedulerError::io(&submission.log_dir, e))?;
     state.record_event(intent);
     state.commit()?;
-    match sched.submit(submission) {
-        Ok(job) => {
+    match submit_exactly_once(sched, submission, &std::thread::sleep) {
+        SubmitOutcome::Taken(job) => {
             state.record_event(Event::Submitted { sub, job });
             state.commit()?;
-            Ok(())
+            Ok(true)
         }
-        Err(e) => {
+        SubmitOutcome::NotTaken(e) => {
             state.record_event(Event::Abandoned {
                 sub,
                 why: e.to_string(),
             });
             state.commit()?;
-            Err(e.into())
+            if ambiguous(&e) {
+                tracing::warn!(
+                    "{}: not submitted this round ({e}); legwork tries again at the next poll",
+                    submission.name
+                );
+                Ok(false)
+            } else {
+                Err(e.into())
+            }
         }
+        SubmitOutcome::Unresolved(_) => Ok(false),
     }
 }
 
@@ -362,7 +404,7 @@ pub fn poll(
     if live.is_empty() {
         return Ok(summary);
     }
-    let result = sched.query(&jobs)?;
+    let result = super::outage::patiently(ctx, "the queue query", || sched.query(&jobs))?;
     let now = ctx.clock.now();
     let mut to_cancel = Vec::new();
     for (ti, element, attempt) in live {
@@ -703,7 +745,7 @@ pub fn watch_until_settled(
         let submitted = if stop.load(Ordering::SeqCst) {
             SubmitSummary::default()
         } else {
-            submit_ready(state, sched, ctx, &super::Selection::all())?
+            submit_ready_within(state, sched, ctx, &super::Selection::all(), Some(interval))?
         };
         let summary = Summary::with_limit(state, ctx.config.max_attempts);
         progress(&summary);
@@ -714,7 +756,7 @@ pub fn watch_until_settled(
                 polls,
             });
         }
-        if summary.total.live() == 0 && submitted.tasks == 0 {
+        if summary.total.live() == 0 && submitted.tasks == 0 && submitted.deferred == 0 {
             return Ok(Settled {
                 summary,
                 interrupted: false,

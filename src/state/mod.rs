@@ -13,6 +13,7 @@ pub mod markers;
 pub mod ops;
 pub mod outage;
 pub mod record;
+pub mod recover;
 pub mod selection;
 pub mod submit_once;
 pub mod summary;
@@ -273,6 +274,7 @@ pub struct CampaignState {
     data: StateData,
     journal: Journal,
     pending: Vec<Event>,
+    recovery: Option<String>,
     _lock: CampaignLock,
 }
 
@@ -282,7 +284,8 @@ impl CampaignState {
     pub fn open(root: &Path, plan: Plan, lock_wait: Duration) -> Result<CampaignState, StateError> {
         let dir = root.join(".legwork");
         let lock = CampaignLock::acquire(&dir, lock_wait)?;
-        let (journal, data) = Journal::open(&dir)?;
+        let (mut journal, data) = Journal::open(&dir)?;
+        let recovery = journal.take_damage();
         let index = plan
             .tasks
             .iter()
@@ -297,6 +300,7 @@ impl CampaignState {
             data,
             journal,
             pending: Vec::new(),
+            recovery,
             _lock: lock,
         })
     }
@@ -364,6 +368,12 @@ impl CampaignState {
             self.journal.snapshot(&self.data)?;
         }
         Ok(())
+    }
+
+    /// Why the state must be rebuilt from the tree (the journal was damaged or
+    /// shorter than its snapshot), once.
+    pub fn take_recovery(&mut self) -> Option<String> {
+        self.recovery.take()
     }
 
     /// Writes a snapshot now.

@@ -125,6 +125,22 @@ pub fn reconcile(
     Ok(intents.len())
 }
 
+/// When the journal was found damaged or shorter than its snapshot, rebuilds
+/// the state from the tree and the scheduler, with a one-line notice.
+fn recover_if_damaged(
+    state: &mut CampaignState,
+    sched: &mut dyn Scheduler,
+    ctx: &Context,
+) -> Result<(), StateError> {
+    if let Some(why) = state.take_recovery() {
+        let n = rescan(state, sched, ctx)?;
+        tracing::warn!(
+            "{why}; rebuilt the state from the snapshot, the rest of the journal, the task directories and the scheduler ({n} tasks updated)"
+        );
+    }
+    Ok(())
+}
+
 /// The job id holding the current attempt of task `i`, if it is live in a known job.
 fn live_job(state: &CampaignState, i: TaskIndex) -> Option<(String, usize)> {
     let r = state.data.tasks.get(&state.plan.tasks[i].id)?;
@@ -163,8 +179,10 @@ pub fn submit_ready_within(
     time_budget: Option<Duration>,
 ) -> Result<SubmitSummary, StateError> {
     reconcile(state, sched)?;
+    recover_if_damaged(state, sched, ctx)?;
     let started = Instant::now();
     let mut stalled = false;
+    let mut rebuilt = false;
     let mut summary = SubmitSummary::default();
     let live = state
         .data
@@ -180,6 +198,22 @@ pub fn submit_ready_within(
     let mut wrapper = None;
     for b in 0..state.plan.batches.len() {
         let mut chosen = ready_members(state, b, sel);
+        if !rebuilt
+            && chosen
+                .iter()
+                .any(|&(_, ti)| super::recover::tree_knows_more(state, ti))
+        {
+            // The tree shows work the journal does not know: rebuild first
+            // (once), then decide again.
+            rebuilt = true;
+            let n = rescan(state, sched, ctx)?;
+            tracing::warn!(
+                "the task directories show work the journal does not know (a lost or cut journal?): rebuilt the state from them and the scheduler ({n} tasks updated)"
+            );
+            chosen = ready_members(state, b, sel);
+        }
+        // Never submit an attempt the tree shows already ran.
+        chosen.retain(|&(_, ti)| !super::recover::tree_knows_more(state, ti));
         if budget < chosen.len() {
             summary.held_back += chosen.len() - budget;
             chosen.truncate(budget);
@@ -399,6 +433,7 @@ pub fn poll(
     ctx: &Context,
 ) -> Result<PollSummary, StateError> {
     reconcile(state, sched)?;
+    recover_if_damaged(state, sched, ctx)?;
     let mut summary = PollSummary::default();
     let (live, jobs) = live_elements(state, &*sched);
     if live.is_empty() {
@@ -807,17 +842,17 @@ pub fn rescan(
         let walltime = r.walltime_s.unwrap_or(0).max(task.resources.walltime_s);
         let plan = &state.plan;
         let check = || ctx.hooks.check_output(plan, ti, &dir);
+        let in_tree = super::recover::tree_attempt(&dir);
         let (status, attempt) = match latest.get(&task.id) {
+            // The tree has seen a later attempt than the journal (a cut journal).
+            Some((_, attempt, _)) if in_tree > *attempt => (None, in_tree),
             Some((job, attempt, idx)) => {
                 let st = (!job.is_empty())
                     .then(|| result.elements.get(&sched.element_id(job, *idx)))
                     .flatten();
                 (Some(st), *attempt)
             }
-            None => (
-                None,
-                markers::exited_any(&dir).map(|e| e.attempt).unwrap_or(0),
-            ),
+            None => (None, in_tree),
         };
         let (new, reason, kind) = match status {
             Some(st) => match classify(st, &dir, attempt, walltime, &check) {

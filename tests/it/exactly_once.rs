@@ -162,3 +162,99 @@ fn a_refused_submission_is_not_retried_and_names_the_refusal() {
         "sbatch was run although the script was missing"
     );
 }
+
+/// Runs a campaign to the end through the fake Slurm that runs what it
+/// accepts, damages its journal with `damage`, and runs it again: nothing may
+/// be submitted or started a second time, and every task ends done.
+fn rerun_after(damage: &dyn Fn(&Path)) -> PathBuf {
+    let d = tempfile::tempdir().unwrap().keep();
+    let root = d.join("campaign");
+    let fake = d.join("fake-slurm");
+    std::fs::create_dir_all(&fake).unwrap();
+    let p = plan(3, 3, 600);
+    write_tasks(&root, &p, "echo ok > out.txt\n");
+    let cfg = faulty(&fake, "");
+    let ctx = exit_code_context(&cfg);
+    let stop = AtomicBool::new(false);
+    for round in 0..2 {
+        let mut st = CampaignState::open(&root, p.clone(), Duration::from_secs(60)).unwrap();
+        let mut sched = scheduler::build(&cfg, &root, "t");
+        state::watch_until_settled(
+            &mut st,
+            sched.as_mut(),
+            &ctx,
+            Duration::from_millis(100),
+            &stop,
+            &mut |_| {},
+        )
+        .unwrap();
+        let subs = submitted(&fake);
+        for (ti, t) in p.tasks.iter().enumerate() {
+            let dir = root.join(&t.dir);
+            assert_eq!(
+                st.state(ti),
+                TaskState::Done,
+                "round {round}: {} not done",
+                t.id
+            );
+            assert_eq!(
+                starts(&dir),
+                vec![1],
+                "round {round}: {} started as attempts",
+                t.id
+            );
+            assert_eq!(
+                subs[&dir.display().to_string()],
+                vec![1],
+                "round {round}: {} submitted as attempts",
+                t.id
+            );
+        }
+        drop(st);
+        if round == 0 {
+            damage(&root.join(".legwork"));
+        }
+    }
+    d
+}
+
+#[test]
+fn a_deleted_journal_is_rebuilt_from_the_tree_and_nothing_runs_again() {
+    let d = rerun_after(&|dir| {
+        std::fs::remove_file(dir.join("journal.jsonl")).unwrap();
+        let _ = std::fs::remove_file(dir.join("snapshot.json"));
+    });
+    std::fs::remove_dir_all(d).unwrap();
+}
+
+#[test]
+fn a_journal_cut_at_a_line_boundary_is_rebuilt_from_the_tree() {
+    let d = rerun_after(&|dir| {
+        let j = dir.join("journal.jsonl");
+        let text = std::fs::read_to_string(&j).unwrap();
+        let lines: Vec<&str> = text.lines().collect();
+        let keep = lines[..lines.len() / 2].join("\n") + "\n";
+        std::fs::write(&j, keep).unwrap();
+    });
+    std::fs::remove_dir_all(d).unwrap();
+}
+
+#[test]
+fn a_corrupted_journal_line_is_set_aside_and_the_state_rebuilt() {
+    let d = rerun_after(&|dir| {
+        let j = dir.join("journal.jsonl");
+        let text = std::fs::read_to_string(&j).unwrap();
+        let mut lines: Vec<String> = text.lines().map(String::from).collect();
+        let mid = lines.len() / 2;
+        lines[mid] = "{\"t\":\"2026-01-01\",\"event\":{garbage".into();
+        std::fs::write(&j, lines.join("\n") + "\n").unwrap();
+    });
+    let side = std::fs::read_to_string(d.join("campaign/.legwork/journal.damaged")).unwrap();
+    assert!(
+        side.contains("\t{\"t\":\"2026-01-01\",\"event\":{garbage"),
+        "{side}"
+    );
+    let lineno: usize = side.split('\t').next().unwrap().parse().unwrap();
+    assert!(lineno > 1, "the line number {lineno} of the set-aside line");
+    std::fs::remove_dir_all(d).unwrap();
+}

@@ -29,7 +29,7 @@ pub enum RunError {
         attempts: u32,
     },
     /// The command exited non-zero (after retries, if the failure looked transient).
-    #[error("`{command}` exited with {code:?}: {stderr}")]
+    #[error("`{command}` {}: {stderr}", ended(*code))]
     Failed {
         /// The command line.
         command: String,
@@ -40,6 +40,14 @@ pub enum RunError {
         /// What it printed on standard output.
         stdout: String,
     },
+}
+
+/// How a command ended, in words: "exited with status 1", "was killed by a signal".
+fn ended(code: Option<i32>) -> String {
+    match code {
+        Some(c) => format!("exited with status {c}"),
+        None => "was killed by a signal".into(),
+    }
 }
 
 /// Output of a command that exited 0.
@@ -353,9 +361,16 @@ mod tests {
             .run("sh", &["-c".into(), "echo nope >&2; exit 3".into()])
             .unwrap_err();
         match err {
-            RunError::Failed { code, stderr, .. } => {
-                assert_eq!(code, Some(3));
+            RunError::Failed {
+                ref code,
+                ref stderr,
+                ..
+            } => {
+                assert_eq!(*code, Some(3));
                 assert_eq!(stderr, "nope");
+                let text = err.to_string();
+                assert!(text.contains("exited with status 3: nope"), "{text}");
+                assert!(!text.contains("Some("), "{text}");
             }
             other => panic!("unexpected {other}"),
         }

@@ -59,6 +59,10 @@ pub enum Command {
     Report(commands::report::Args),
     /// Estimate one leg's free energy from its window tables.
     Estimate(commands::estimate::Args),
+    /// Propose λ schedules, edges or extra sampling from pilots and results (predictions).
+    Propose(commands::propose::Args),
+    /// Run a leg's reader on sample output files and show what it understood.
+    TryReader(commands::try_reader::Args),
     /// check, expand, submit, watch, collect and report in one go.
     Run(commands::run::Args),
     /// Print a shell completion script.

@@ -22,5 +22,6 @@ pub mod render;
 pub mod report;
 pub mod scheduler;
 pub mod state;
+pub mod text;
 
 pub use legwork_numerics::{cycle, estimate, network, units};

@@ -6,6 +6,9 @@
 //! - [`cycle`]: a leg's replicas combined, an edge's signed legs and corrections.
 //! - [`network`]: per-ligand ΔG by weighted least squares, cycle closure and the
 //!   statistics against measured values.
+//! - [`design`]: where the next compute should go: λ schedules from the
+//!   thermodynamic length, A-optimal allocation of frames, edges chosen by
+//!   expected variance (predictions, not measurements).
 //! - [`units`]: energy units and the gas constant.
 //! - [`samples`]: the per-window and per-leg samples the estimators take.
 //!
@@ -16,6 +19,7 @@
 #![warn(missing_docs)]
 
 pub mod cycle;
+pub mod design;
 pub mod estimate;
 pub mod network;
 pub mod samples;

@@ -42,6 +42,19 @@ impl WindowSamples {
     /// A window from matrices already in reduced units (for callers and tests that
     /// generate samples). `reduced` is `frames × lambdas.len()`; `dudl` is empty or
     /// `frames × 1` for the single component `lambda`.
+    ///
+    /// # Panics
+    ///
+    /// When `reduced` is not a whole number of rows of `lambdas.len()` values, or
+    /// `dudl` is neither empty nor one value per frame.
+    ///
+    /// # Examples
+    ///
+    /// ```
+    /// use legwork_numerics::samples::WindowSamples;
+    /// let w = WindowSamples::from_reduced(0, 300.0, vec![0.0, 1.0], vec![0.0, 1.0, 0.5, 2.0], vec![]);
+    /// assert_eq!((w.frames, w.row(1)), (2, &[0.5, 2.0][..]));
+    /// ```
     pub fn from_reduced(
         state: usize,
         temperature_k: f64,
@@ -77,6 +90,10 @@ impl WindowSamples {
 
     /// The reduced potentials of frame `n` at every state.
     #[inline]
+    ///
+    /// # Panics
+    ///
+    /// When `n` is not a frame.
     pub fn row(&self, n: usize) -> &[f64] {
         &self.reduced[n * self.n_states..(n + 1) * self.n_states]
     }
@@ -88,6 +105,10 @@ impl WindowSamples {
 
     /// dU/dλ of component `c` at frame `n`, kT.
     #[inline]
+    ///
+    /// # Panics
+    ///
+    /// When there is no dU/dλ for that frame and component.
     pub fn dudl_at(&self, n: usize, c: usize) -> f64 {
         self.dudl[n * self.components.len() + c]
     }
@@ -113,6 +134,19 @@ pub struct LegSamples {
 impl LegSamples {
     /// A leg from windows already checked by the caller to fit together (tests and
     /// generated data); sorts them by state and panics when they do not fit.
+    ///
+    /// # Panics
+    ///
+    /// When `windows` is empty or does not hold exactly one window per state.
+    ///
+    /// # Examples
+    ///
+    /// ```
+    /// use legwork_numerics::samples::{LegSamples, WindowSamples};
+    /// let w = |s| WindowSamples::from_reduced(s, 300.0, vec![0.0, 1.0], vec![0.0; 4], vec![]);
+    /// let leg = LegSamples::from_windows(vec![w(1), w(0)]);
+    /// assert_eq!((leg.n_states(), leg.windows[0].state), (2, 0));
+    /// ```
     pub fn from_windows(mut windows: Vec<WindowSamples>) -> LegSamples {
         windows.sort_by_key(|w| w.state);
         let first = &windows[0];

@@ -32,7 +32,13 @@ impl EnergyUnit {
     /// All units, in the order they are listed in help texts.
     pub const ALL: [EnergyUnit; 3] = [EnergyUnit::KcalPerMol, EnergyUnit::KjPerMol, EnergyUnit::Kt];
 
-    /// The spelling used in files and on the command line.
+    /// The usual spelling (`kJ/mol`, `kcal/mol`, `kT`).
+    ///
+    /// ```
+    /// use legwork_numerics::units::EnergyUnit;
+    /// assert_eq!(EnergyUnit::KcalPerMol.as_str(), "kcal/mol");
+    /// assert_eq!(EnergyUnit::Kt.to_string(), "kT");
+    /// ```
     pub fn as_str(self) -> &'static str {
         match self {
             EnergyUnit::KjPerMol => "kJ/mol",
@@ -41,7 +47,14 @@ impl EnergyUnit {
         }
     }
 
-    /// kJ/mol per one of this unit at temperature `t_kelvin`.
+    /// kJ/mol per one of this unit at temperature `t_kelvin` (the temperature
+    /// matters only for [`EnergyUnit::Kt`]).
+    ///
+    /// ```
+    /// use legwork_numerics::units::EnergyUnit;
+    /// assert_eq!(EnergyUnit::KcalPerMol.kj_per_unit(300.0), 4.184);
+    /// assert!((EnergyUnit::Kt.kj_per_unit(300.0) - 2.494_338_8).abs() < 1e-7);
+    /// ```
     pub fn kj_per_unit(self, t_kelvin: f64) -> f64 {
         match self {
             EnergyUnit::KjPerMol => 1.0,
@@ -51,11 +64,23 @@ impl EnergyUnit {
     }
 
     /// Factor that converts a value in `self` to a value in `to` at `t_kelvin`.
+    ///
+    /// ```
+    /// use legwork_numerics::units::EnergyUnit;
+    /// let f = EnergyUnit::KjPerMol.factor_to(EnergyUnit::KcalPerMol, 298.15);
+    /// assert!((f - 1.0 / 4.184).abs() < 1e-15);
+    /// ```
     pub fn factor_to(self, to: EnergyUnit, t_kelvin: f64) -> f64 {
         self.kj_per_unit(t_kelvin) / to.kj_per_unit(t_kelvin)
     }
 
     /// Converts `value` from `self` to `to` at `t_kelvin`.
+    ///
+    /// ```
+    /// use legwork_numerics::units::EnergyUnit;
+    /// let kt = EnergyUnit::KcalPerMol.convert(0.592_484_9, EnergyUnit::Kt, 298.15);
+    /// assert!((kt - 1.0).abs() < 1e-6);
+    /// ```
     pub fn convert(self, value: f64, to: EnergyUnit, t_kelvin: f64) -> f64 {
         value * self.factor_to(to, t_kelvin)
     }
@@ -67,13 +92,25 @@ impl fmt::Display for EnergyUnit {
     }
 }
 
-/// The text was not one of the unit spellings legwork knows.
+/// The text was not one of the known unit spellings (see [`EnergyUnit`]'s
+/// `FromStr`: `kcal/mol`, `kcal mol-1`, `kJ/mol`, `kj/mol`, `kJ mol-1`, `kT`, `kt`).
+///
+/// ```
+/// use legwork_numerics::units::EnergyUnit;
+/// let e = "eV".parse::<EnergyUnit>().unwrap_err();
+/// assert_eq!(e.to_string(), "unknown energy unit 'eV': use kcal/mol, kJ/mol or kT");
+/// ```
 #[derive(Debug, Clone, PartialEq, Eq, thiserror::Error)]
 #[error("unknown energy unit '{0}': use kcal/mol, kJ/mol or kT")]
 pub struct UnknownUnit(pub String);
 
 impl FromStr for EnergyUnit {
     type Err = UnknownUnit;
+    /// Parses a unit spelling (surrounding blanks ignored).
+    ///
+    /// # Errors
+    ///
+    /// [`UnknownUnit`] for any other text.
     fn from_str(s: &str) -> Result<Self, Self::Err> {
         match s.trim() {
             "kJ/mol" | "kj/mol" | "kJ mol-1" => Ok(EnergyUnit::KjPerMol),
@@ -84,12 +121,22 @@ impl FromStr for EnergyUnit {
     }
 }
 
-/// kT in kJ/mol at `t_kelvin`.
+/// kT in kJ/mol at `t_kelvin` (R T, [`GAS_CONSTANT_KJ`]).
+///
+/// ```
+/// assert!((legwork_numerics::units::kt_kj(298.15) - 2.478_957).abs() < 1e-6);
+/// ```
 pub fn kt_kj(t_kelvin: f64) -> f64 {
     GAS_CONSTANT_KJ * t_kelvin
 }
 
 /// kT in `unit` at `t_kelvin`.
+///
+/// ```
+/// use legwork_numerics::units::{kt_in, EnergyUnit};
+/// assert!((kt_in(EnergyUnit::KcalPerMol, 298.15) - 0.592_484_9).abs() < 1e-7);
+/// assert_eq!(kt_in(EnergyUnit::Kt, 298.15), 1.0);
+/// ```
 pub fn kt_in(unit: EnergyUnit, t_kelvin: f64) -> f64 {
     EnergyUnit::Kt.factor_to(unit, t_kelvin)
 }

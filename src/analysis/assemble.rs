@@ -4,8 +4,10 @@
 use super::info::CampaignInfo;
 use super::results::{LegReplica, MissingWork, Results, RESULTS_SCHEMA};
 use crate::collect::experiment::IC50_NOTE;
-use crate::cycle::{combine_edge, CampaignKind, CycleError, EdgeResult, LegValue};
-use crate::network::stats::compare_all;
+use crate::cycle::{
+    combine_edge_directed, edge_directions, CampaignKind, CycleError, EdgeResult, LegValue,
+};
+use crate::network::stats::compare_estimates;
 use crate::network::{annotate_edges, solve, LigandEstimate, Measured, MeasuredKind};
 use crate::network::{CycleClosure, Hysteresis, NetworkEdge, NetworkError, Offset};
 use crate::plan::Subject;
@@ -51,14 +53,8 @@ pub fn assemble(
         CampaignKind::Relative => Ligands::default(),
         _ => Ligands::from_cycles(&edges, &measured),
     };
-    let statistics = (!measured.is_empty()).then(|| {
-        let pairs: Vec<(String, f64)> = ligands
-            .ligands
-            .iter()
-            .map(|l| (l.ligand.clone(), l.dg))
-            .collect();
-        compare_all(&pairs, &edges, &measured, info.seed)
-    });
+    let statistics = (!measured.is_empty())
+        .then(|| compare_estimates(&ligands.ligands, &edges, &measured, info.seed));
     campaign_warnings(&legs, &measured, &missing, &mut warnings);
     Ok(Results {
         schema: RESULTS_SCHEMA,
@@ -115,8 +111,14 @@ fn close_cycles(
     legs: &[LegReplica],
     warnings: &mut Vec<String>,
 ) -> Result<Vec<EdgeResult>, AssembleError> {
+    let parsed = subjects(legs)
+        .into_iter()
+        .map(|s| Ok((s, subject(info, s)?)))
+        .collect::<Result<Vec<_>, AssembleError>>()?;
+    // An edge whose reverse came first takes its constant corrections negated.
+    let directions = edge_directions(&parsed.iter().map(|p| p.1.clone()).collect::<Vec<_>>());
     let mut edges = Vec::new();
-    for s in subjects(legs) {
+    for ((s, subject), direction) in parsed.into_iter().zip(directions) {
         let values: Vec<LegValue> = legs
             .iter()
             .filter(|l| l.subject == s)
@@ -127,9 +129,19 @@ fn close_cycles(
                 sigma: l.sigma,
             })
             .collect();
-        let subject = subject(info, s)?;
-        match combine_edge(&subject, &info.legs, &values, info.temperature_k, info.unit) {
-            Ok(e) => edges.push(e),
+        let closed = combine_edge_directed(
+            &subject,
+            direction,
+            &info.legs,
+            &values,
+            info.temperature_k,
+            info.unit,
+        );
+        match closed {
+            Ok(e) => {
+                warnings.extend(e.warnings.iter().cloned());
+                edges.push(e);
+            }
             Err(CycleError::MissingLeg { subject, leg }) => warnings.push(format!(
                 "{subject}: leg '{leg}' has no finished replica yet, so this {} is left out",
                 if info.kind == CampaignKind::Relative {
@@ -166,6 +178,7 @@ impl Ligands {
                     sigma: e.sigma,
                     measured: measured_of(&e.ligand_a),
                     component: 0,
+                    anchor: None,
                 })
                 .collect(),
             ..Ligands::default()

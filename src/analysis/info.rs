@@ -24,36 +24,13 @@ pub struct CampaignInfo {
     pub seed: u64,
 }
 
-impl From<crate::campaign::CampaignKind> for CampaignKind {
-    fn from(k: crate::campaign::CampaignKind) -> Self {
-        match k {
-            crate::campaign::CampaignKind::Relative => CampaignKind::Relative,
-            crate::campaign::CampaignKind::Absolute => CampaignKind::Absolute,
-            crate::campaign::CampaignKind::Solvation => CampaignKind::Solvation,
-        }
-    }
-}
-
 /// A campaign leg as the cycle sees it (sign, constant correction, restraint).
 pub fn leg_spec(leg: &crate::campaign::Leg) -> LegSpec {
     LegSpec {
         name: leg.name.clone(),
         sign: f64::from(leg.sign),
         correction: leg.correction.unwrap_or(0.0),
-        restraint: leg
-            .restraint
-            .as_ref()
-            .map(|r| crate::cycle::BoreschRestraint {
-                r0: r.r0,
-                theta_a: r.theta_a,
-                theta_b: r.theta_b,
-                k_r: r.k_r,
-                k_theta_a: r.k_theta_a,
-                k_theta_b: r.k_theta_b,
-                k_phi_a: r.k_phi_a,
-                k_phi_b: r.k_phi_b,
-                k_phi_c: r.k_phi_c,
-            }),
+        restraint: leg.restraint,
     }
 }
 
@@ -66,7 +43,7 @@ impl CampaignInfo {
             .unwrap_or_else(|| "mbar".into());
         CampaignInfo {
             name: c.name.clone(),
-            kind: c.kind.into(),
+            kind: c.kind,
             unit: c.unit,
             temperature_k: c.temperature_k,
             estimator,

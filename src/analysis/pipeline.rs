@@ -89,7 +89,7 @@ pub fn analyse_campaign(
         .iter()
         .partition(|set| set.tasks.iter().all(|&t| done(t)));
     let missing: Vec<MissingWork> = waiting.iter().map(|set| missing_work(set, done)).collect();
-    let cache = ParseCache::new(&campaign.root.join(".legwork"), &campaign.reader);
+    let cache = ParseCache::for_campaign(campaign, plan);
     let opts = EstimateOptions::from_analysis(&campaign.analysis);
     let read = Mutex::new(ReadCounts::default());
     let finished = AtomicUsize::new(0);

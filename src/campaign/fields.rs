@@ -1,8 +1,10 @@
 //! Reading typed values out of the marked YAML tree while collecting every
 //! problem, each with its position.
 
+use super::de::from_node;
 use super::diagnostic::{Diagnostic, Severity};
 use super::yaml::{Node, Pos, Value};
+use serde::de::DeserializeOwned;
 use std::path::{Path, PathBuf};
 
 /// Collects diagnostics for one file.
@@ -118,43 +120,64 @@ impl Ctx {
         }
     }
 
-    /// A number (integers accepted).
-    pub fn number(&mut self, node: &Node, what: &str) -> Option<f64> {
-        match &node.value {
-            Value::Int(i) => Some(*i as f64),
-            Value::Float(f) if f.is_finite() => Some(*f),
-            _ => {
-                self.error(
-                    node.pos,
-                    format!("{what} must be a number, not {}", node.kind()),
-                    None,
-                );
+    /// `node` read as a `T` through serde (see [`de`](super::de)), named `what` in
+    /// the message; a problem is recorded where it is and gives `None`.
+    pub fn typed<T: DeserializeOwned>(&mut self, node: &Node, what: &str) -> Option<T> {
+        match from_node::<T>(node, what) {
+            Ok(v) => Some(v),
+            Err(e) => {
+                let hint = e.hint().unwrap_or_else(|| {
+                    format!("see {what} in the README's section \"The campaign file\"")
+                });
+                self.error(e.pos.unwrap_or(node.pos), e.message(), Some(hint));
                 None
             }
         }
     }
 
+    /// A finite number (integers accepted).
+    pub fn number(&mut self, node: &Node, what: &str) -> Option<f64> {
+        self.typed::<f64>(node, what)
+    }
+
     /// A non-negative integer.
     pub fn uint(&mut self, node: &Node, what: &str) -> Option<u64> {
-        match &node.value {
-            Value::Int(i) if *i >= 0 => Some(*i as u64),
-            Value::Int(i) => {
-                self.error(
-                    node.pos,
-                    format!("{what} must not be negative (it is {i})"),
-                    None,
-                );
-                None
-            }
-            _ => {
-                self.error(
-                    node.pos,
-                    format!("{what} must be a whole number, not {}", node.kind()),
-                    Some("write a whole number such as 3, without quotes".to_string()),
-                );
-                None
-            }
+        self.typed::<u64>(node, what)
+    }
+
+    /// A whole number in `lo..=hi`, else an error naming the range.
+    pub fn int_in<T>(&mut self, node: &Node, what: &str, lo: T, hi: T) -> Option<T>
+    where
+        T: DeserializeOwned + PartialOrd + std::fmt::Display + Copy,
+    {
+        let v = self.typed::<T>(node, what)?;
+        self.in_range(node, what, v, lo, hi)
+    }
+
+    /// A finite number in `lo..=hi`, else an error naming the range.
+    pub fn number_in(&mut self, node: &Node, what: &str, lo: f64, hi: f64) -> Option<f64> {
+        let v = self.number(node, what)?;
+        self.in_range(node, what, v, lo, hi)
+    }
+
+    /// `v` when it lies in `lo..=hi`, else an error at `node` naming the range.
+    pub fn in_range<T: PartialOrd + std::fmt::Display + Copy>(
+        &mut self,
+        node: &Node,
+        what: &str,
+        v: T,
+        lo: T,
+        hi: T,
+    ) -> Option<T> {
+        if v >= lo && v <= hi {
+            return Some(v);
         }
+        self.error(
+            node.pos,
+            format!("{what} = {v} is out of range"),
+            Some(format!("allowed: {lo} to {hi}")),
+        );
+        None
     }
 
     /// A list.
@@ -179,13 +202,7 @@ impl Ctx {
         };
         match &node.value {
             Value::Null => Default::default(),
-            Value::Map(_) => match node.to_json() {
-                serde_json::Value::Object(m) => {
-                    self.fields(node, what, &[]);
-                    m
-                }
-                _ => Default::default(),
-            },
+            Value::Map(_) => self.typed(node, what).unwrap_or_default(),
             _ => {
                 self.error(
                     node.pos,

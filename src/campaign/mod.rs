@@ -4,20 +4,31 @@
 //! tables, templates), reports every problem at once, and returns a [`Campaign`]
 //! with every path absolute and every default filled in.
 
+pub mod de;
 pub mod diagnostic;
 pub mod fields;
 pub mod ids;
 pub mod lambdas;
+mod legs;
+mod members;
 pub mod model;
 pub mod parse;
+pub mod paths;
 pub mod quantity;
+mod quoting;
+mod resources;
+mod settings;
+mod stages;
 pub mod tables;
 pub mod templates;
 pub mod yaml;
 
 pub use diagnostic::{CampaignError, Diagnostic, Severity};
 pub use lambdas::{LambdaSchedule, Spacing};
-pub use model::{Campaign, CampaignKind, Edge, Leg, Ligand, Restraint, Stage, StagePer, Vars};
+pub use model::{
+    BoreschRestraint, Campaign, CampaignKind, Edge, Leg, Ligand, Resources, Stage, StagePer,
+    Subject, Vars,
+};
 
 use std::path::{Path, PathBuf};
 
@@ -41,7 +52,7 @@ pub struct Loaded {
 /// Reads and validates a campaign file. Errors hold every diagnostic found.
 pub fn load(path: &Path, opts: &LoadOptions) -> Result<Loaded, CampaignError> {
     let cwd = std::env::current_dir().unwrap_or_else(|_| PathBuf::from("/"));
-    let file = parse::resolve(&cwd, path);
+    let file = paths::resolve(&cwd, path);
     let text = std::fs::read_to_string(&file).map_err(|e| CampaignError {
         diagnostics: vec![Diagnostic {
             severity: Severity::Error,
@@ -52,7 +63,7 @@ pub fn load(path: &Path, opts: &LoadOptions) -> Result<Loaded, CampaignError> {
             hint: Some("check the path; `legwork new DIR` writes a starting campaign".into()),
         }],
     })?;
-    let root = opts.root_override.as_ref().map(|r| parse::resolve(&cwd, r));
+    let root = opts.root_override.as_ref().map(|r| paths::resolve(&cwd, r));
     let input = parse::Input {
         file: &file,
         text: &text,
@@ -61,5 +72,20 @@ pub fn load(path: &Path, opts: &LoadOptions) -> Result<Loaded, CampaignError> {
     match parse::parse(&input) {
         Ok((campaign, warnings)) => Ok(Loaded { campaign, warnings }),
         Err(diagnostics) => Err(CampaignError { diagnostics }),
+    }
+}
+
+/// Whether `id` is a safe id; if not, an error at `pos` saying why.
+fn safe_id(ctx: &mut fields::Ctx, id: &str, pos: yaml::Pos, what: &str) -> bool {
+    match ids::unsafe_reason(id) {
+        Some(why) => {
+            ctx.error(
+                pos,
+                format!("{what} '{id}' is not a safe id: {why}"),
+                Some(ids::ID_HINT.to_string()),
+            );
+            false
+        }
+        None => true,
     }
 }

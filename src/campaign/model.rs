@@ -3,37 +3,28 @@
 use super::lambdas::LambdaSchedule;
 use crate::collect::ReaderConfig;
 use crate::estimate::AnalysisOptions;
-use crate::plan::Resources;
 use crate::scheduler::SchedulerConfig;
 use crate::units::EnergyUnit;
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 use std::path::PathBuf;
+
+pub use crate::cycle::{BoreschRestraint, CampaignKind, Subject};
+
+/// What one task asks of the scheduler (the plan uses this type as it is).
+#[derive(Debug, Clone, PartialEq, Eq, Hash, Serialize, Deserialize)]
+pub struct Resources {
+    /// CPU cores.
+    pub cpus: u32,
+    /// GPUs.
+    pub gpus: u32,
+    /// memory in MiB (0: the scheduler's default)
+    pub memory_mb: u64,
+    /// wall-clock limit in seconds
+    pub walltime_s: u64,
+}
 
 /// Free-form template variables.
 pub type Vars = serde_json::Map<String, serde_json::Value>;
-
-/// What the campaign computes.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
-#[serde(rename_all = "lowercase")]
-pub enum CampaignKind {
-    /// Relative binding free energies along edges between ligands.
-    Relative,
-    /// Absolute binding free energy of each ligand.
-    Absolute,
-    /// Solvation free energy of each ligand.
-    Solvation,
-}
-
-impl CampaignKind {
-    /// The spelling used in campaign files.
-    pub fn as_str(self) -> &'static str {
-        match self {
-            CampaignKind::Relative => "relative",
-            CampaignKind::Absolute => "absolute",
-            CampaignKind::Solvation => "solvation",
-        }
-    }
-}
 
 /// One ligand of the series.
 #[derive(Debug, Clone, PartialEq, Serialize)]
@@ -62,32 +53,6 @@ impl Edge {
     }
 }
 
-/// A Boresch-style orientational restraint of an absolute-binding leg
-/// (Boresch et al. 2003, J. Phys. Chem. B 107, 9535).
-#[derive(Debug, Clone, PartialEq, Serialize)]
-pub struct Restraint {
-    /// Only `boresch` for now.
-    pub kind: String,
-    /// Reference distance r0 in Å.
-    pub r0: f64,
-    /// Reference angle θA in degrees.
-    pub theta_a: f64,
-    /// Reference angle θB in degrees.
-    pub theta_b: f64,
-    /// Distance force constant, kcal/mol/Å².
-    pub k_r: f64,
-    /// Angle force constant for θA, kcal/mol/rad².
-    pub k_theta_a: f64,
-    /// Angle force constant for θB, kcal/mol/rad².
-    pub k_theta_b: f64,
-    /// Dihedral force constant φA, kcal/mol/rad².
-    pub k_phi_a: f64,
-    /// Dihedral force constant φB, kcal/mol/rad².
-    pub k_phi_b: f64,
-    /// Dihedral force constant φC, kcal/mol/rad².
-    pub k_phi_c: f64,
-}
-
 /// One leg of every edge (or ligand): e.g. `complex` and `solvent`.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct Leg {
@@ -105,8 +70,11 @@ pub struct Leg {
     pub vars: Vars,
     /// Constant added to this leg's signed contribution, in the campaign unit.
     pub correction: Option<f64>,
-    /// Orientational restraint (absolute binding).
-    pub restraint: Option<Restraint>,
+    /// Orientational restraint (absolute binding), the core's own type.
+    pub restraint: Option<BoreschRestraint>,
+    /// How this leg's window output is read, when it differs from the campaign's
+    /// `reader:` (see [`Campaign::reader_for`]).
+    pub reader: Option<ReaderConfig>,
 }
 
 impl Leg {
@@ -229,9 +197,13 @@ impl Campaign {
         self.ligands.iter().find(|l| l.id == id)
     }
 
+    /// How a leg's window output is read: its own `reader:`, else the campaign's.
+    pub fn reader_for<'a>(&'a self, leg: &'a Leg) -> &'a ReaderConfig {
+        leg.reader.as_ref().unwrap_or(&self.reader)
+    }
+
     /// The subjects tasks are made for: edges (relative) or ligands.
-    pub fn subjects(&self) -> Vec<crate::plan::Subject> {
-        use crate::plan::Subject;
+    pub fn subjects(&self) -> Vec<Subject> {
         match self.kind {
             CampaignKind::Relative => self
                 .edges

@@ -10,48 +10,58 @@ pub fn parse_walltime(text: &str) -> Result<u64, String> {
     if t.is_empty() {
         return Err(bad());
     }
-    if t.contains(':') {
-        let (days, rest) = match t.split_once('-') {
-            Some((d, r)) => (d.parse::<u64>().map_err(|_| bad())?, r),
-            None => (0, t),
-        };
-        let parts: Vec<&str> = rest.split(':').collect();
-        if parts.len() < 2 || parts.len() > 3 {
-            return Err(bad());
-        }
-        let nums: Vec<u64> = parts
-            .iter()
-            .map(|p| {
-                if p.is_empty() || !p.bytes().all(|b| b.is_ascii_digit()) {
-                    Err(bad())
-                } else {
-                    p.parse::<u64>().map_err(|_| bad())
-                }
-            })
-            .collect::<Result<_, _>>()?;
-        let (h, m, s) = if nums.len() == 3 {
-            (nums[0], nums[1], nums[2])
-        } else {
-            (0, nums[0], nums[1])
-        };
-        if m >= 60 || s >= 60 {
-            return Err(format!(
-                "walltime '{text}': minutes and seconds must be below 60"
-            ));
-        }
-        let total = days * 86_400 + h * 3600 + m * 60 + s;
-        return if total == 0 {
-            Err(format!("walltime '{text}' is zero"))
-        } else {
-            Ok(total)
-        };
-    }
     if t.bytes().all(|b| b.is_ascii_digit()) {
         return Err(format!(
             "walltime '{text}' has no unit: write {text}s, {text}m or {text}h"
         ));
     }
-    let mut total = 0u64;
+    let total = if t.contains(':') {
+        clock(t, text)?
+    } else {
+        units(t).ok_or_else(bad)?
+    };
+    match total {
+        None => Err(format!("walltime '{text}' is too long to count in seconds")),
+        Some(0) => Err(format!("walltime '{text}' is zero")),
+        Some(s) => Ok(s),
+    }
+}
+
+/// `HH:MM:SS`, `MM:SS` or `D-HH:MM:SS`; `Ok(None)` when it overflows.
+fn clock(t: &str, text: &str) -> Result<Option<u64>, String> {
+    let bad = || format!("walltime '{text}' is not understood: write e.g. 01:30:00 or 1-12:00:00");
+    let digits = |p: &str| {
+        if p.is_empty() || !p.bytes().all(|b| b.is_ascii_digit()) {
+            Err(bad())
+        } else {
+            p.parse::<u64>().map_err(|_| bad())
+        }
+    };
+    let (days, rest) = match t.split_once('-') {
+        Some((d, r)) => (digits(d)?, r),
+        None => (0, t),
+    };
+    let nums: Vec<u64> = rest.split(':').map(digits).collect::<Result<_, _>>()?;
+    let (h, m, s) = match nums[..] {
+        [h, m, s] => (h, m, s),
+        [m, s] => (0, m, s),
+        _ => return Err(bad()),
+    };
+    if m >= 60 || s >= 60 {
+        return Err(format!(
+            "walltime '{text}': minutes and seconds must be below 60"
+        ));
+    }
+    Ok(days
+        .checked_mul(86_400)
+        .and_then(|d| d.checked_add(h.checked_mul(3600)?))
+        .and_then(|t| t.checked_add(m * 60 + s)))
+}
+
+/// `2d`, `1h30m`, … (units largest first); `None` when not understood,
+/// `Some(None)` when it overflows.
+fn units(t: &str) -> Option<Option<u64>> {
+    let mut total = Some(0u64);
     let mut num = String::new();
     let mut last_rank = usize::MAX;
     for c in t.chars() {
@@ -64,22 +74,17 @@ pub fn parse_walltime(text: &str) -> Result<u64, String> {
             'h' => (3600, 2),
             'm' => (60, 1),
             's' => (1, 0),
-            _ => return Err(bad()),
+            _ => return None,
         };
         if num.is_empty() || rank >= last_rank {
-            return Err(bad());
+            return None;
         }
         last_rank = rank;
-        total += num.parse::<u64>().map_err(|_| bad())? * mult;
+        let n = num.parse::<u64>().ok();
+        total = total.and_then(|t| n?.checked_mul(mult)?.checked_add(t));
         num.clear();
     }
-    if !num.is_empty() {
-        return Err(bad());
-    }
-    if total == 0 {
-        return Err(format!("walltime '{text}' is zero"));
-    }
-    Ok(total)
+    num.is_empty().then_some(total)
 }
 
 /// Formats seconds as `HH:MM:SS` (hours may exceed 24).
@@ -145,6 +150,9 @@ mod tests {
         assert!(parse_walltime("30m1h").is_err());
         assert!(parse_walltime("00:61:00").is_err());
         assert!(parse_walltime("0s").is_err());
+        assert_eq!(parse_walltime("99999999d"), Ok(99_999_999 * 86_400));
+        assert!(parse_walltime("999999999999999999999d").is_err());
+        assert!(parse_walltime("99999999999999999-00:00:00").is_err());
         assert_eq!(format_walltime(5400), "01:30:00");
         assert_eq!(format_walltime(129_600), "36:00:00");
     }

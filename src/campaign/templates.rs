@@ -32,7 +32,7 @@ pub fn template_files(dir: &Path) -> Result<Vec<(String, PathBuf)>, String> {
 pub fn load_tera(campaign: &Campaign) -> Result<tera::Tera, Vec<Diagnostic>> {
     let mut tera = tera::Tera::default();
     tera.autoescape_on(vec![]);
-    crate::render::register_filters(&mut tera);
+    crate::text::register_filters(&mut tera);
     let mut files = template_files(&campaign.templates_dir).map_err(|e| {
         vec![Diagnostic {
             severity: Severity::Error,

@@ -121,18 +121,44 @@ enum Open {
     Map(Vec<(Node, Node)>, Option<Node>, Pos, usize),
 }
 
+/// Most values that aliases may copy into one document, all aliases together:
+/// far above what any campaign repeats by alias, far below what exhausts memory
+/// (an "alias bomb" of nested anchors grows tenfold per line).
+pub const MAX_ALIASED_VALUES: usize = 100_000;
+
+/// Most aliases in one document.
+pub const MAX_ALIASES: usize = 10_000;
+
 #[derive(Default)]
 struct Builder {
     stack: Vec<Open>,
-    anchors: HashMap<usize, Node>,
+    /// anchored nodes and how many values each holds
+    anchors: HashMap<usize, (Node, usize)>,
     root: Option<Node>,
     error: Option<SyntaxError>,
+    aliases: usize,
+    aliased_values: usize,
+}
+
+/// How many values a node holds, itself included.
+fn size(node: &Node) -> usize {
+    match &node.value {
+        Value::Seq(items) => 1 + items.iter().map(size).sum::<usize>(),
+        Value::Map(entries) => {
+            1 + entries
+                .iter()
+                .map(|(k, v)| size(k) + size(v))
+                .sum::<usize>()
+        }
+        _ => 1,
+    }
 }
 
 impl Builder {
     fn push(&mut self, node: Node, anchor: usize) {
         if anchor > 0 {
-            self.anchors.insert(anchor, node.clone());
+            let n = size(&node);
+            self.anchors.insert(anchor, (node.clone(), n));
         }
         match self.stack.last_mut() {
             None => {
@@ -227,10 +253,23 @@ impl MarkedEventReceiver for Builder {
                 ),
                 None => {}
             },
-            Event::Alias(id) => match self.anchors.get(&id).cloned() {
-                Some(mut n) => {
-                    n.pos = p;
-                    self.push(n, 0)
+            Event::Alias(id) => match self.anchors.get(&id) {
+                Some((_, n)) if self.aliases >= MAX_ALIASES
+                    || self.aliased_values + n > MAX_ALIASED_VALUES =>
+                {
+                    self.error = Some(SyntaxError {
+                        pos: p,
+                        message: format!(
+                            "aliases here would copy more than {MAX_ALIASED_VALUES} values (or use more than {MAX_ALIASES} aliases): the file is refused rather than expanded"
+                        ),
+                    })
+                }
+                Some((node, n)) => {
+                    self.aliases += 1;
+                    self.aliased_values += n;
+                    let mut node = node.clone();
+                    node.pos = p;
+                    self.push(node, 0)
                 }
                 None => {
                     self.error = Some(SyntaxError {
@@ -244,8 +283,10 @@ impl MarkedEventReceiver for Builder {
     }
 }
 
-/// Parses one YAML document. An empty document is `Null` at 1:1.
+/// Parses one YAML document. An empty document is `Null` at 1:1. A byte-order
+/// mark at the start is skipped.
 pub fn parse(text: &str) -> Result<Node, SyntaxError> {
+    let text = text.strip_prefix('\u{feff}').unwrap_or(text);
     let mut b = Builder::default();
     let mut parser = Parser::new_from_str(text);
     parser.load(&mut b, false).map_err(|e| SyntaxError {
@@ -284,6 +325,35 @@ mod tests {
     fn syntax_error_has_a_line() {
         let e = parse("a: [1, 2\nb: 3\n").unwrap_err();
         assert!(e.pos.line >= 1, "{e:?}");
+    }
+
+    #[test]
+    fn a_byte_order_mark_is_not_part_of_the_first_key() {
+        let n = parse("\u{feff}campaign: t\n").unwrap();
+        let Value::Map(m) = &n.value else { panic!() };
+        assert_eq!(m[0].0.as_str(), Some("campaign"));
+    }
+
+    #[test]
+    fn an_alias_bomb_is_refused_at_the_alias() {
+        let mut text = String::from("a0: &a0 [x, x, x, x, x, x, x, x, x, x]\n");
+        for i in 1..30 {
+            let prev = format!("*a{}", i - 1);
+            let list = [prev.as_str(); 10].join(", ");
+            text.push_str(&format!("a{i}: &a{i} [{list}]\n"));
+        }
+        let e = parse(&text).unwrap_err();
+        assert!(e.message.contains("aliases"), "{e:?}");
+        // 10 → 100 → 1000 → 10 000 → 100 000 values: line 5 passes the limit.
+        assert_eq!(e.pos.line, 5, "{e:?}");
+    }
+
+    #[test]
+    fn modest_aliases_still_work() {
+        let n = parse("base: &b { cpus: 2 }\nx: *b\ny: *b\n").unwrap();
+        let Value::Map(m) = &n.value else { panic!() };
+        assert_eq!(m[1].1.value, m[0].1.value);
+        assert_eq!(m[2].1.pos.line, 3);
     }
 
     #[test]

@@ -12,16 +12,19 @@
 //! [`WindowSamples`] except the two matrices), then the reduced-potential matrix and
 //! the dU/dλ matrix as little-endian f64, back to back.
 
-use super::{read_window, ReadError, ReaderConfig, WindowSamples};
+use super::{read_window_with, ReadError, ReaderConfig, WindowHint, WindowSamples};
+use crate::campaign::Campaign;
+use crate::plan::Plan;
 use serde::{Deserialize, Serialize};
 use sha2::{Digest, Sha256};
+use std::collections::HashMap;
 use std::fs;
 use std::io;
 use std::path::{Path, PathBuf};
 use std::time::UNIX_EPOCH;
 
 /// Bumped whenever the entry layout or the meaning of parsed samples changes.
-const FORMAT: u32 = 1;
+const FORMAT: u32 = 2;
 
 /// What identifies the parsed content of a window file.
 #[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
@@ -65,6 +68,17 @@ pub struct ParseCache {
     dir: PathBuf,
     reader: ReaderConfig,
     reader_key: String,
+    /// Per leg: its reader, that reader's key, and what the plan knows.
+    legs: Vec<LegReading>,
+    /// Output path of every analysed window task → (leg, window).
+    outputs: HashMap<PathBuf, (usize, usize)>,
+}
+
+#[derive(Debug, Clone)]
+struct LegReading {
+    reader: ReaderConfig,
+    key: String,
+    hint: WindowHint,
 }
 
 impl ParseCache {
@@ -75,28 +89,90 @@ impl ParseCache {
             dir: legwork_dir.join("cache").join("windows"),
             reader: reader.clone(),
             reader_key: serde_json::to_string(reader).unwrap_or_default(),
+            legs: Vec::new(),
+            outputs: HashMap::new(),
         }
+    }
+
+    /// The cache of `campaign`'s analysed windows: a window output of the plan
+    /// is read with its leg's reader and what the plan knows about it (state,
+    /// λ, temperature; both are part of the cache key); any other path with
+    /// the campaign's reader alone.
+    pub fn for_campaign(campaign: &Campaign, plan: &Plan) -> ParseCache {
+        let mut cache = ParseCache::new(&campaign.root.join(".legwork"), &campaign.reader);
+        let Some(output) = campaign.analysed_stage().and_then(|s| s.output.clone()) else {
+            return cache;
+        };
+        let mut leg_index: HashMap<&str, usize> = HashMap::new();
+        for set in &plan.windows {
+            for (w, &t) in set.tasks.iter().enumerate() {
+                let task = &plan.tasks[t];
+                let l = *leg_index.entry(task.leg.as_str()).or_insert_with(|| {
+                    let reader = super::legs::leg_reader(campaign, &task.leg).clone();
+                    let mut hint = super::legs::window_hint(campaign, plan, t);
+                    hint.state = None;
+                    hint.what = Some(format!("leg {}", task.leg));
+                    cache.legs.push(LegReading {
+                        key: serde_json::to_string(&reader).unwrap_or_default(),
+                        reader,
+                        hint,
+                    });
+                    cache.legs.len() - 1
+                });
+                let window = task.window.unwrap_or(w);
+                cache
+                    .outputs
+                    .insert(campaign.root.join(&task.dir).join(&output), (l, window));
+            }
+        }
+        cache
     }
 
     /// The window at `path`, from the cache when its entry is still valid, else
     /// parsed and cached. A cache entry that cannot be read or written is not an
     /// error: the window is parsed and a warning logged.
     pub fn read(&self, path: &Path) -> Result<(WindowSamples, Source), ReadError> {
-        let key = self.key(path)?;
+        match self.outputs.get(path) {
+            Some(&(l, window)) => {
+                let leg = &self.legs[l];
+                let hint = WindowHint {
+                    state: Some(window),
+                    what: leg
+                        .hint
+                        .what
+                        .as_ref()
+                        .map(|w| format!("{w}, window {window}")),
+                    ..leg.hint.clone()
+                };
+                let key = format!("{}|{hint:?}", leg.key);
+                self.read_with(path, &leg.reader, &hint, &key)
+            }
+            None => self.read_with(path, &self.reader, &WindowHint::default(), &self.reader_key),
+        }
+    }
+
+    fn read_with(
+        &self,
+        path: &Path,
+        reader: &ReaderConfig,
+        hint: &WindowHint,
+        reader_key: &str,
+    ) -> Result<(WindowSamples, Source), ReadError> {
+        let key = self.key(path, reader_key)?;
         let entry = self.entry_path(path);
         match load(&entry, &key) {
             Ok(Some(w)) => return Ok((w, Source::Cached)),
             Ok(None) => {}
             Err(e) => tracing::warn!("ignoring unreadable cache entry {}: {e}", entry.display()),
         }
-        let w = read_window(path, &self.reader)?;
+        let w = read_window_with(path, reader, hint)?;
         if let Err(e) = store(&entry, &key, &w) {
             tracing::warn!("could not write cache entry {}: {e}", entry.display());
         }
         Ok((w, Source::Parsed))
     }
 
-    fn key(&self, path: &Path) -> Result<Key, ReadError> {
+    fn key(&self, path: &Path, reader_key: &str) -> Result<Key, ReadError> {
         let meta = fs::metadata(path).map_err(|source| ReadError::Io {
             path: path.to_path_buf(),
             source,
@@ -113,7 +189,7 @@ impl ParseCache {
             path: path.to_path_buf(),
             size: meta.len(),
             mtime_ns,
-            reader: self.reader_key.clone(),
+            reader: reader_key.to_string(),
         })
     }
 

@@ -64,7 +64,29 @@ pub enum ReadError {
         /// Frames required.
         min: u64,
     },
+    /// The file holds nothing yet (no header, or no data after the comments).
+    #[error("{path}: {problem}")]
+    Empty {
+        /// The file.
+        path: PathBuf,
+        /// What is missing.
+        problem: String,
+    },
     /// A leg's windows disagree with each other, or states are missing or doubled.
     #[error("{0}")]
     Leg(String),
+}
+
+impl ReadError {
+    /// Whether running the engine again can cure this: the output is missing,
+    /// empty or short (the engine died, the walltime hit). Everything else is a
+    /// file the engine finished that the reader does not understand: a reader
+    /// setting (or an engine writing something else than configured), which a
+    /// rerun would only repeat.
+    pub fn rerun_can_fix(&self) -> bool {
+        matches!(
+            self,
+            ReadError::Io { .. } | ReadError::TooFewFrames { .. } | ReadError::Empty { .. }
+        )
+    }
 }

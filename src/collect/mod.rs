@@ -1,12 +1,15 @@
-//! Reading window output (window tables and configurable columns) into compact
-//! samples in reduced units. The only part of the numeric path that does I/O.
+//! Reading window output (window tables, configurable columns, blocks) into
+//! compact samples in reduced units. The only part of the numeric path that does
+//! I/O.
 
+mod blocks;
 pub mod cache;
 mod columns;
 pub mod config;
 mod error;
 pub mod experiment;
 pub mod gather;
+pub mod legs;
 mod meta;
 mod parse;
 mod window_table;
@@ -56,6 +59,34 @@ pub fn read_window_with(
     })
 }
 
+/// What a reader understood of a window, beyond its samples: which column (or
+/// label) became which state or component, and where the unit and temperature
+/// came from.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct Explanation {
+    /// (column or label in the file, what it became), in file order.
+    pub columns: Vec<(String, String)>,
+    /// The energy unit and where it came from.
+    pub unit: String,
+    /// Where the temperature came from.
+    pub temperature: String,
+}
+
+/// Reads one window and says what the reader understood (see [`Explanation`]).
+pub fn explain_window(
+    path: &Path,
+    config: &ReaderConfig,
+    hint: &WindowHint,
+) -> Result<(WindowSamples, Explanation), ReadError> {
+    let text = std::fs::read(path).map_err(|source| ReadError::Io {
+        path: path.to_path_buf(),
+        source,
+    })?;
+    let mut ex = Explanation::default();
+    let w = parse_inner(path, &text, config, hint, Some(&mut ex))?;
+    Ok((w, ex))
+}
+
 /// Parses one window's output already in memory (`path` is used in messages).
 pub fn parse_window(
     path: &Path,
@@ -63,8 +94,20 @@ pub fn parse_window(
     config: &ReaderConfig,
     hint: &WindowHint,
 ) -> Result<WindowSamples, ReadError> {
+    parse_inner(path, text, config, hint, None)
+}
+
+fn parse_inner(
+    path: &Path,
+    text: &[u8],
+    config: &ReaderConfig,
+    hint: &WindowHint,
+    ex: Option<&mut Explanation>,
+) -> Result<WindowSamples, ReadError> {
     match config.format {
-        ReaderFormat::WindowTable => window_table::parse_window_table(path, text, hint),
+        ReaderFormat::WindowTable => {
+            window_table::parse_window_table(path, text, hint, config.on_conflict, ex)
+        }
         ReaderFormat::Columns => {
             let cols = config.columns.as_ref().ok_or_else(|| {
                 ReadError::Config(
@@ -72,7 +115,16 @@ pub fn parse_window(
                         .into(),
                 )
             })?;
-            columns::parse_columns(path, text, cols, hint)
+            columns::parse_columns(path, text, cols, hint, config.on_conflict, ex)
+        }
+        ReaderFormat::Blocks => {
+            let b = config.blocks.as_ref().ok_or_else(|| {
+                ReadError::Config(
+                    "`format: blocks` needs a `blocks:` section (start, energies, energy_unit, ...)"
+                        .into(),
+                )
+            })?;
+            blocks::parse_blocks(path, text, b, hint, config.on_conflict, ex)
         }
     }
 }
@@ -159,24 +211,39 @@ pub fn assemble(mut windows: Vec<WindowSamples>) -> Result<LegSamples, ReadError
             "the leg has {k} states but no window sampled state(s) {missing:?}; add their window files (or check that each file's '# state:' line is right)"
         )));
     }
-    Ok(LegSamples::from_windows(windows))
+    let mut leg = LegSamples::from_windows(windows);
+    // A note that every window repeats (a settled unit conflict) is said once.
+    let mut seen = std::collections::HashSet::new();
+    leg.warnings.retain(|w| seen.insert(w.clone()));
+    Ok(leg)
 }
 
 /// The "done means done" check of a finished window: its output parses and holds
-/// at least `min_frames` frames. Returns the frame count.
+/// at least `min_frames` frames (and at least one). Returns the frame count.
 pub fn validate_output(
     path: &Path,
     config: &ReaderConfig,
     min_frames: Option<u64>,
 ) -> Result<u64, ReadError> {
-    let w = read_window(path, config)?;
+    validate_output_with(path, config, &WindowHint::default(), min_frames)
+}
+
+/// [`validate_output`] with what the plan knows about the window.
+pub fn validate_output_with(
+    path: &Path,
+    config: &ReaderConfig,
+    hint: &WindowHint,
+    min_frames: Option<u64>,
+) -> Result<u64, ReadError> {
+    let w = read_window_with(path, config, hint)?;
     let frames = w.frames as u64;
-    match min_frames {
-        Some(min) if frames < min => Err(ReadError::TooFewFrames {
+    let min = min_frames.unwrap_or(1).max(1);
+    if frames < min {
+        return Err(ReadError::TooFewFrames {
             path: path.to_path_buf(),
             frames,
             min,
-        }),
-        _ => Ok(frames),
+        });
     }
+    Ok(frames)
 }

@@ -1,7 +1,9 @@
-//! legwork's native window table (DESIGN.md), read without configuration.
+//! legwork's native window table (README: *The window table*), read without
+//! configuration.
 
+use super::config::OnConflict;
 use super::error::ReadError;
-use super::meta::{read_preamble, WindowHint};
+use super::meta::{check_against_plan, read_preamble, resolve_temperature, WindowHint};
 use super::parse::{parse_rows, split_header, Delim, RowSpec, Slot};
 use super::WindowSamples;
 use crate::units::EnergyUnit;
@@ -14,6 +16,8 @@ pub(crate) fn parse_window_table(
     path: &Path,
     text: &[u8],
     hint: &WindowHint,
+    on_conflict: OnConflict,
+    ex: Option<&mut super::Explanation>,
 ) -> Result<WindowSamples, ReadError> {
     let comments = [b"#".to_vec()];
     let pre = read_preamble(path, text, &comments)?;
@@ -22,6 +26,12 @@ pub(crate) fn parse_window_table(
         line,
         problem,
     };
+    if pre.first_line.is_none() && pre.meta.first_comment.is_none() {
+        return Err(ReadError::Empty {
+            path: path.to_path_buf(),
+            problem: "the file is empty: the window wrote nothing yet".into(),
+        });
+    }
     match pre.meta.first_comment.as_deref() {
         Some(first) if first.starts_with(MAGIC) => {
             let version = first[MAGIC.len()..].trim();
@@ -35,21 +45,24 @@ pub(crate) fn parse_window_table(
         _ => {
             return Err(header_err(
                 1,
-                format!("not a legwork window table: the first line should be '# {MAGIC} 1'; for another engine's output configure `reader: {{format: columns, ...}}`"),
+                format!("not a legwork window table: the first line should be '# {MAGIC} 1'; for another engine's output configure a reader (README: *Reading engine output*)"),
             ))
         }
     }
     let meta = &pre.meta;
-    let (header, header_line) = pre.first_line.clone().ok_or_else(|| {
-        header_err(
-            pre.at_first.1,
-            "no header line (time, dudl, u0, ...) and no data: the window wrote nothing yet".into(),
-        )
+    let (header, header_line) = pre.first_line.clone().ok_or_else(|| ReadError::Empty {
+        path: path.to_path_buf(),
+        problem: "no header line (time, dudl, u0, ...) and no data: the window wrote nothing yet"
+            .into(),
     })?;
-    let temperature_k = hint
-        .temperature_k
-        .or(meta.temperature_k)
-        .ok_or_else(|| header_err(1, "no '# temperature_K: ...' line; add it (kelvin)".into()))?;
+    if meta.temperature_k.is_none() && hint.temperature_k.is_none() {
+        return Err(header_err(
+            1,
+            "no '# temperature_K: ...' line; add it (kelvin)".into(),
+        ));
+    }
+    check_against_plan(path, meta, hint)?;
+    let (temperature_k, t_note) = resolve_temperature(path, meta, None, hint, on_conflict)?;
     let unit = meta.energy_unit.ok_or_else(|| {
         header_err(
             1,
@@ -162,6 +175,11 @@ pub(crate) fn parse_window_table(
         n_dudl: components.len(),
         scale: unit.factor_to(EnergyUnit::Kt, temperature_k),
     };
+    if let Some(ex) = ex {
+        ex.unit = format!("{unit}, the file's energy_unit line");
+        ex.temperature = super::meta::temperature_source(meta, None, hint);
+        ex.columns = super::columns::explain_slots(&spec.slots, &spec.headers, &components, false);
+    }
     let rows = parse_rows(path, text, pre.after_first.0, pre.after_first.1, &spec)?;
     Ok(WindowSamples {
         source: path.to_path_buf(),
@@ -174,6 +192,6 @@ pub(crate) fn parse_window_table(
         n_states: k,
         reduced: rows.reduced,
         dudl: rows.dudl,
-        warnings: rows.warnings,
+        warnings: t_note.into_iter().chain(rows.warnings).collect(),
     })
 }

@@ -141,6 +141,44 @@ pub fn load_or_exit(
     }
 }
 
+/// Reads the measured-affinities file, if the campaign names one, with the same
+/// reader `collect` uses: a bad row is exit code 2 here, before anything runs.
+/// Measured ligands that are not in the campaign are a warning.
+fn check_experiment(c: &Campaign, json: bool) -> anyhow::Result<()> {
+    let Some(path) = &c.experiment else {
+        return Ok(());
+    };
+    match crate::collect::experiment::read_measured(path, c.temperature_k, c.unit) {
+        Ok(measured) => {
+            let unknown: Vec<&str> = measured
+                .iter()
+                .map(|m| m.ligand.as_str())
+                .filter(|l| !c.ligands.iter().any(|x| x.id == *l))
+                .collect();
+            if !unknown.is_empty() && !json {
+                eprintln!(
+                    "warning: {}: measured ligands that are not in the campaign (ignored): {}",
+                    path.display(),
+                    unknown.join(", ")
+                );
+            }
+            Ok(())
+        }
+        Err(e) => {
+            if json {
+                println!(
+                    "{}",
+                    serde_json::json!({"ok": false, "experiment_error": e.to_string()})
+                );
+            }
+            Err(Exit::bad_input(format!(
+                "error: {e}\nhint: each row is ligand,kind,value,unit with kind dg (unit kcal/mol or kJ/mol) or ki, kd, ic50 (unit pM, nM, uM, mM or M); see 'Measured affinities' in the README"
+            ))
+            .into())
+        }
+    }
+}
+
 /// Runs `legwork check`.
 pub fn run(args: Args, _global: &Global) -> anyhow::Result<()> {
     let loaded = load_or_exit(&args.file, args.root, args.json)?;
@@ -155,10 +193,30 @@ pub fn run(args: Args, _global: &Global) -> anyhow::Result<()> {
         }
         return Err(Exit::bad_input(format!("error: {e}")).into());
     }
+    let reader_problems = crate::collect::legs::check_readers(c);
+    if !reader_problems.is_empty() {
+        let text: Vec<String> = reader_problems
+            .iter()
+            .map(|p| format!("{}: {p}", c.file.display()))
+            .collect();
+        if args.json {
+            println!(
+                "{}",
+                serde_json::json!({"ok": false, "reader_errors": text})
+            );
+        }
+        return Err(Exit::bad_input(text.join("\n")).into());
+    }
+    check_experiment(c, args.json)?;
     let s = summarise(c, &p, loaded.warnings);
     if args.json {
         let mut v = serde_json::to_value(&s)?;
         v["ok"] = true.into();
+        v["readers"] = reader_lines(c)
+            .into_iter()
+            .map(|(legs, lines)| serde_json::json!({"legs": legs, "reader": lines}))
+            .collect::<Vec<_>>()
+            .into();
         v["tasks"] = s
             .tasks
             .iter()
@@ -202,6 +260,12 @@ pub fn run(args: Args, _global: &Global) -> anyhow::Result<()> {
         "  requests    {:.1} core-hours, {:.1} GPU-hours",
         s.core_hours, s.gpu_hours
     );
+    for (legs, lines) in reader_lines(c) {
+        println!("  reader      legs {}:", legs.join(", "));
+        for l in lines {
+            println!("                {l}");
+        }
+    }
     println!("  tree        {}", s.root.display());
     if !s.warnings.is_empty() {
         println!(
@@ -211,4 +275,17 @@ pub fn run(args: Args, _global: &Global) -> anyhow::Result<()> {
         );
     }
     Ok(())
+}
+
+/// The reader settings in words, once per group of legs that share them.
+fn reader_lines(c: &Campaign) -> Vec<(Vec<String>, Vec<String>)> {
+    let mut out: Vec<(Vec<String>, Vec<String>)> = Vec::new();
+    for leg in &c.legs {
+        let lines = crate::collect::legs::describe(crate::collect::legs::leg_reader(c, &leg.name));
+        match out.iter_mut().find(|(_, l)| *l == lines) {
+            Some((legs, _)) => legs.push(leg.name.clone()),
+            None => out.push((vec![leg.name.clone()], lines)),
+        }
+    }
+    out
 }

@@ -38,6 +38,11 @@ pub struct Args {
     /// Print JSON instead of a table.
     #[arg(long)]
     pub json: bool,
+    /// Read the files with this reader configuration (a YAML file holding a
+    /// reader section, or a campaign file whose `reader:` is used) instead of as
+    /// window tables.
+    #[arg(long, value_name = "FILE")]
+    pub reader: Option<PathBuf>,
 }
 
 fn parse_subsample(s: &str) -> Result<Subsample, String> {
@@ -80,12 +85,12 @@ pub fn run(args: Args, _global: &Global) -> anyhow::Result<()> {
         ..Default::default()
     };
     let t_read = Instant::now();
-    let leg = read_leg_with(
-        &args.files,
-        &ReaderConfig::default(),
-        &vec![hint; args.files.len()],
-    )
-    .map_err(|e| Exit::bad_input(e.to_string()))?;
+    let reader = match &args.reader {
+        Some(p) => crate::collect::config::load_reader_file(p).map_err(Exit::bad_input)?,
+        None => ReaderConfig::default(),
+    };
+    let leg = read_leg_with(&args.files, &reader, &vec![hint; args.files.len()])
+        .map_err(|e| Exit::bad_input(e.to_string()))?;
     let read_s = t_read.elapsed().as_secs_f64();
     if methods.iter().all(|m| m.uses_dudl()) && !leg.windows.iter().all(|w| w.has_dudl()) {
         return Err(Exit::bad_input(
@@ -108,7 +113,7 @@ pub fn run(args: Args, _global: &Global) -> anyhow::Result<()> {
             read_s,
             m.solve_seconds,
             m.iterations,
-            crate::estimate::mbar::PASSES.load(std::sync::atomic::Ordering::Relaxed)
+            m.passes
         );
     }
     if args.json {
@@ -145,7 +150,8 @@ pub fn to_json(est: &LegEstimate, unit: EnergyUnit, read_s: f64) -> Value {
         "overlap": est.overlap,
         "min_adjacent_overlap": est.min_adjacent_overlap,
         "windows": est.windows,
-        "warnings": est.warnings,
+        "warnings": est.warnings_in(unit),
+        "unreliable": est.unreliable,
         "read_s": read_s,
     });
     if let Some(m) = &est.mbar {
@@ -222,9 +228,15 @@ fn table(est: &LegEstimate, unit: EnergyUnit) -> String {
             );
         }
     }
+    if !est.unreliable.is_empty() {
+        let _ = writeln!(s, "\nunreliable:");
+        for (m, why) in &est.unreliable {
+            let _ = writeln!(s, "  - {m}: {why}");
+        }
+    }
     if !est.warnings.is_empty() {
         let _ = writeln!(s, "\nwarnings:");
-        for w in &est.warnings {
+        for w in est.warnings_in(unit) {
             let _ = writeln!(s, "  - {w}");
         }
     }

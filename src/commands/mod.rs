@@ -10,11 +10,13 @@ pub mod estimate;
 pub mod expand;
 pub mod man;
 pub mod new;
+pub mod propose;
 pub mod report;
 pub mod resume;
 pub mod run;
 pub mod status;
 pub mod submit;
+pub mod try_reader;
 pub mod watch;
 
 use crate::cli::{Command, Global};
@@ -33,6 +35,8 @@ pub fn dispatch(command: Command, global: &Global) -> anyhow::Result<()> {
         Command::Collect(a) => collect::run(a, global),
         Command::Report(a) => report::run(a, global),
         Command::Estimate(a) => estimate::run(a, global),
+        Command::Propose(a) => propose::run(a, global),
+        Command::TryReader(a) => try_reader::run(a, global),
         Command::Run(a) => run::run(a, global),
         Command::Completions(a) => completions::run(a, global),
         Command::Man(a) => man::run(a, global),

@@ -41,6 +41,23 @@ pub fn run(args: Args, global: &Global) -> anyhow::Result<()> {
             ..c.ctx
         };
         let r = crate::state::resume(c.state, c.sched.as_mut(), &ctx, &sel).map_err(state_exit)?;
+        let v = &r.revalidated;
+        if !global.quiet && v.now_done.len() + v.still_unreadable.len() + v.now_short.len() > 0 {
+            println!(
+                "re-read {} unreadable outputs without running anything: {} now read (done), {} still unreadable, {} read but short (resubmitted)",
+                v.now_done.len() + v.still_unreadable.len() + v.now_short.len(),
+                v.now_done.len(),
+                v.still_unreadable.len(),
+                v.now_short.len()
+            );
+        }
+        if !v.still_unreadable.is_empty() {
+            eprintln!(
+                "{} tasks' output still does not read (first: {}); `legwork status FILE` shows why; fix the reader, then `legwork resume FILE` again",
+                v.still_unreadable.len(),
+                v.still_unreadable[0]
+            );
+        }
         if !global.quiet {
             println!(
                 "resubmitting {} tasks ({} from a checkpoint, {} with a longer walltime); submitted {} tasks in {} jobs",

@@ -188,19 +188,18 @@ pub fn table(s: &Summary, kind: SchedulerKind, all: bool) -> String {
     }
     row(&mut out, "total", &s.total);
     if !s.reasons.is_empty() {
-        out.push_str("\nfailed and lost, by reason:\n");
+        out.push_str("\nfailed and lost, by kind of reason:\n");
         for g in &s.reasons {
             let shown: Vec<&str> = g
                 .tasks
                 .iter()
-                .take(if all { usize::MAX } else { 5 })
+                .take(if all { usize::MAX } else { 3 })
                 .map(String::as_str)
                 .collect();
             let more = g.tasks.len() - shown.len();
             out.push_str(&format!(
-                "  [{}] {} — {} task{}: {}{}\n",
+                "  [{}] {} task{}: {}{}\n      first: {}\n      next: {}\n",
                 g.kind,
-                g.reason,
                 g.tasks.len(),
                 if g.tasks.len() == 1 { "" } else { "s" },
                 shown.join(", "),
@@ -208,15 +207,18 @@ pub fn table(s: &Summary, kind: SchedulerKind, all: bool) -> String {
                     format!(" (+{more} more; --all lists them)")
                 } else {
                     String::new()
-                }
+                },
+                g.reason,
+                g.next
             ));
         }
+        let rerunnable = s.reasons.iter().any(|g| g.kind != "output unreadable");
         if !s.exhausted.is_empty() {
             out.push_str(&format!(
                 "{} of them used every attempt (scheduler.max_attempts); fix the cause, then `legwork resume FILE --extra-attempts N`\n",
                 s.exhausted.len()
             ));
-        } else {
+        } else if rerunnable {
             out.push_str("run `legwork resume FILE` to resubmit them\n");
         }
     }

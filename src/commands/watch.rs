@@ -93,16 +93,15 @@ struct CampaignHooks {
 
 impl TaskHooks for CampaignHooks {
     fn check_output(&self, plan: &Plan, task: usize, dir: &Path) -> Result<(), String> {
-        let t = &plan.tasks[task];
-        let Some(stage) = self.campaign.stages.iter().find(|s| s.name == t.stage) else {
-            return Ok(());
-        };
-        let Some(output) = &stage.output else {
-            return Ok(());
-        };
-        crate::collect::validate_output(&dir.join(output), &self.campaign.reader, t.frames)
+        crate::collect::legs::check_task_output(&self.campaign, plan, task, dir)
             .map(|_| ())
-            .map_err(|e| e.to_string())
+            .map_err(|e| {
+                if e.rerun_can_fix() {
+                    e.to_string()
+                } else {
+                    format!("{}{e}", crate::state::reasons::OUTPUT_UNREADABLE)
+                }
+            })
     }
 
     fn prepare_attempt(

@@ -121,10 +121,19 @@ pub fn read_edges(path: &Path) -> Result<Vec<(String, String)>, DemoError> {
     );
     if is_yaml {
         let text = std::fs::read_to_string(path).map_err(|e| DemoError::io(path, e))?;
-        let c: CampaignEdges = serde_yaml::from_str(&text).map_err(|e| {
-            let line = e.location().map(|l| l.line() as u64).unwrap_or(0);
-            format_err(path, line, format!("cannot read the edges list: {e}"))
-        })?;
+        let c: CampaignEdges = crate::campaign::yaml::parse(&text)
+            .map_err(|e| (e.pos, e.message))
+            .and_then(|root| {
+                crate::campaign::de::from_node(&root, "the campaign file")
+                    .map_err(|e| (e.pos.unwrap_or(root.pos), e.message()))
+            })
+            .map_err(|(pos, msg)| {
+                format_err(
+                    path,
+                    pos.line as u64,
+                    format!("cannot read the edges list: {msg}"),
+                )
+            })?;
         return Ok(c
             .edges
             .into_iter()

@@ -1,4 +1,4 @@
-//! Writing the window table (format in DESIGN.md: `# legwork window table 1`).
+//! Writing the window table (format in README: *The window table*).
 
 use crate::units::EnergyUnit;
 use std::fmt::Write;

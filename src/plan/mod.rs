@@ -19,18 +19,7 @@ pub type BatchIndex = usize;
 
 pub use legwork_numerics::cycle::Subject;
 
-/// What one task asks of the scheduler.
-#[derive(Debug, Clone, PartialEq, Eq, Hash, Serialize, Deserialize)]
-pub struct Resources {
-    /// CPU cores.
-    pub cpus: u32,
-    /// GPUs.
-    pub gpus: u32,
-    /// memory in MiB (0: the scheduler's default)
-    pub memory_mb: u64,
-    /// wall-clock limit in seconds
-    pub walltime_s: u64,
-}
+pub use crate::campaign::model::Resources;
 
 /// One scheduler job or array element: one stage of one window (or of one leg)
 /// of one replica of one leg of one subject.

@@ -173,6 +173,7 @@ impl Page {
                     StatsRow::new("ligands (ΔG)", &s.ligands),
                     StatsRow::new("edges (ΔΔG)", &s.edges),
                 ],
+                anchored: s.anchored.clone(),
             }),
             offset: offset_note(&r.offsets),
             ligands: ligand_rows(r),
@@ -211,6 +212,9 @@ struct StatisticsView {
     resamples: usize,
     seed: u64,
     rows: Vec<StatsRow>,
+    /// Ligands left out: each is the only measured ligand of its part of the
+    /// network, so its ΔG equals its measurement by construction.
+    anchored: Vec<String>,
 }
 
 #[derive(Serialize)]
@@ -283,7 +287,11 @@ fn ligand_rows(r: &Results) -> Vec<LigandRow> {
         .map(|l| LigandRow {
             ligand: l.ligand.clone(),
             dg: f2(l.dg),
-            sigma: f2(l.sigma),
+            sigma: if l.anchor.is_some() {
+                "reference".to_string()
+            } else {
+                f2(l.sigma)
+            },
             measured: o2(l.measured),
             error: o2(l.measured.map(|m| l.dg - m)),
         })

@@ -65,6 +65,13 @@ pub fn print_summary(r: &Results, out: &mut dyn Write) -> io::Result<()> {
         if s.edges.n > 0 {
             writeln!(out, "  edges   (n={}): {}", s.edges.n, stats_line(&s.edges))?;
         }
+        if !s.anchored.is_empty() {
+            writeln!(
+                out,
+                "  not scored (ΔG fixed by their own measurement): {}",
+                s.anchored.join(", ")
+            )?;
+        }
     }
     missing(r, out)?;
     warnings(r, out)
@@ -92,11 +99,14 @@ fn ligands(r: &Results, out: &mut dyn Write) -> io::Result<()> {
         let m = l.measured.map(|m| format!("{m:9.2}")).unwrap_or_default();
         writeln!(
             out,
-            "  {:>4}  {:<16} {:>9.2} {:>7.2} {:>9}",
+            "  {:>4}  {:<16} {:>9.2} {:>7} {:>9}",
             i + 1,
             l.ligand,
             l.dg,
-            l.sigma,
+            match l.anchor {
+                Some(_) => "ref".to_string(),
+                None => format!("{:.2}", l.sigma),
+            },
             m
         )?;
     }

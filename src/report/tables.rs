@@ -167,7 +167,10 @@ pub fn ligands_csv(r: &Results) -> String {
             vec![
                 l.ligand.clone(),
                 num(l.dg),
-                num(l.sigma),
+                match l.anchor {
+                    Some(_) => "reference".to_string(),
+                    None => num(l.sigma),
+                },
                 num(l.dg - mean_of(l.component)),
                 opt(l.measured),
                 (i + 1).to_string(),

@@ -12,6 +12,7 @@ pub mod lock;
 pub mod markers;
 pub mod ops;
 pub mod outage;
+pub mod reasons;
 pub mod record;
 pub mod recover;
 pub mod selection;

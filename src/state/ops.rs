@@ -50,6 +50,8 @@ pub struct ResumeSummary {
     pub walltime_raised: usize,
     /// Failed or lost tasks with no attempt left.
     pub exhausted: Vec<String>,
+    /// Unreadable outputs read again first (see [`super::reasons`]).
+    pub revalidated: super::reasons::Revalidated,
     /// The submission that followed.
     pub submitted: SubmitSummary,
 }
@@ -614,7 +616,10 @@ pub fn resume(
     sel: &super::Selection,
 ) -> Result<ResumeSummary, StateError> {
     poll(state, sched, ctx)?;
-    let mut summary = ResumeSummary::default();
+    let mut summary = ResumeSummary {
+        revalidated: super::reasons::revalidate_unreadable(state, ctx, sel)?,
+        ..Default::default()
+    };
     let with_cancelled = sel.states.contains(&TaskState::Cancelled);
     // A cancelled attempt may still be ending in the queue (Slurm's COMPLETING):
     // such tasks wait for a later resume rather than run twice at once.
@@ -634,6 +639,10 @@ pub fn resume(
             continue;
         }
         let r = state.record(ti);
+        // A reader mistake: rerunning the engine would write the same output.
+        if r.kind == Some(FailureKind::Unreadable) {
+            continue;
+        }
         if r.attempt >= ctx.config.max_attempts {
             summary.exhausted.push(task.id.clone());
             continue;

@@ -82,8 +82,11 @@ pub enum FailureKind {
     OutOfMemory,
     /// Its node failed (or could not boot).
     NodeFailure,
-    /// Exited 0 but its output is missing, truncated or invalid.
+    /// Exited 0 but its output is missing, empty or short (a rerun can cure it).
     Output,
+    /// Exited 0 and its output is complete, but the reader cannot read it (a
+    /// reader setting: never rerun by itself, re-read once the reader is fixed).
+    Unreadable,
     /// Cancelled or preempted by someone other than legwork.
     Cancelled,
     /// Gone from the queue with no exit marker.
@@ -101,7 +104,8 @@ impl FailureKind {
             FailureKind::Walltime => "walltime",
             FailureKind::OutOfMemory => "out of memory",
             FailureKind::NodeFailure => "node failure",
-            FailureKind::Output => "invalid output",
+            FailureKind::Output => "output missing or short",
+            FailureKind::Unreadable => "output unreadable",
             FailureKind::Cancelled => "cancelled outside legwork",
             FailureKind::Lost => "lost",
             FailureKind::Scheduler => "scheduler",

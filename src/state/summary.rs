@@ -62,15 +62,18 @@ impl Counts {
     }
 }
 
-/// One failure reason and the tasks that share it.
+/// One kind of failure and the tasks that share it.
 #[derive(Debug, Clone, PartialEq, Eq, Serialize)]
 pub struct ReasonGroup {
     /// Failure class label (`walltime`, `exit code`, `lost`, …).
     pub kind: String,
-    /// The reason text.
+    /// The first task's reason text (the others' differ at most in paths and
+    /// numbers).
     pub reason: String,
-    /// Tasks (ids) with it.
+    /// Tasks (ids) of this kind.
     pub tasks: Vec<String>,
+    /// What to do next.
+    pub next: String,
 }
 
 /// The whole campaign at a glance.
@@ -99,7 +102,7 @@ impl Summary {
         let mut s = Summary::default();
         let mut order: Vec<String> = Vec::new();
         let mut groups: BTreeMap<String, Counts> = BTreeMap::new();
-        let mut reasons: BTreeMap<(String, String), Vec<String>> = BTreeMap::new();
+        let mut reasons: BTreeMap<String, (String, Vec<String>, String)> = BTreeMap::new();
         for (i, t) in state.plan().tasks.iter().enumerate() {
             let key = format!("{}/{}", t.leg, t.stage);
             let r = state.data().tasks.get(&t.id);
@@ -116,10 +119,19 @@ impl Summary {
                 let r = r.expect("failed tasks have records");
                 let kind = r.kind.map(|k| k.label()).unwrap_or("unknown").to_string();
                 reasons
-                    .entry((kind, r.reason.clone().unwrap_or_default()))
-                    .or_default()
+                    .entry(kind)
+                    .or_insert_with(|| {
+                        (
+                            r.reason.clone().unwrap_or_default(),
+                            Vec::new(),
+                            super::reasons::next_step(r.kind).to_string(),
+                        )
+                    })
+                    .1
                     .push(t.id.clone());
-                if r.attempt >= max_attempts {
+                if r.attempt >= max_attempts
+                    && r.kind != Some(super::record::FailureKind::Unreadable)
+                {
                     s.exhausted.push(state.plan().tasks[i].id.clone());
                 }
             }
@@ -133,10 +145,11 @@ impl Summary {
             .collect();
         s.reasons = reasons
             .into_iter()
-            .map(|((kind, reason), tasks)| ReasonGroup {
+            .map(|(kind, (reason, tasks, next))| ReasonGroup {
                 kind,
                 reason,
                 tasks,
+                next,
             })
             .collect();
         s

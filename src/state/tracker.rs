@@ -62,7 +62,10 @@ pub(crate) fn classify(
             if clean {
                 return match check_output() {
                     Ok(()) => Verdict::Ended(TaskState::Done, None, None),
-                    Err(why) => failed(format!("exit 0 but {why}"), FailureKind::Output),
+                    Err(why) => {
+                        let (reason, kind) = super::reasons::output_failure(why);
+                        failed(reason, kind)
+                    }
                 };
             }
             let elapsed = ex.elapsed_s();

@@ -217,7 +217,15 @@ fn ti_quadrature_matches_scipy() {
     let est = estimate_leg(&leg, &plain(&[Method::Ti, Method::TiSpline])).unwrap();
     let y: Vec<f64> = est.ti_points.iter().map(|p| p.mean).collect();
     let s: Vec<f64> = est.ti_points.iter().map(|p| p.sem).collect();
-    let doc = serde_json::json!({"segments": [{"x": lam, "y": y, "sem": s}]});
+    let frames: Vec<Vec<Vec<f64>>> = leg
+        .windows
+        .iter()
+        .map(|w| w.dudl.iter().map(|v| vec![*v]).collect())
+        .collect();
+    let doc = serde_json::json!({
+        "segments": [{"x": lam, "y": y, "sem": s, "states": (0..k).collect::<Vec<_>>(), "component": 0}],
+        "frames": frames,
+    });
     let out = scipy_ti(&py, &doc);
     for (m, key) in [(Method::Ti, "trapezoid"), (Method::TiSpline, "spline")] {
         let d = est.estimates[&m];
@@ -279,9 +287,19 @@ fn multi_component_ti_integrates_each_component_over_its_own_path() {
             "x": range.clone().map(|i| x[i]).collect::<Vec<_>>(),
             "y": pts.iter().map(|p| p.mean).collect::<Vec<_>>(),
             "sem": pts.iter().map(|p| p.sem).collect::<Vec<_>>(),
+            "states": range.clone().collect::<Vec<_>>(),
+            "component": if comp == "restraint" { 0 } else { 1 },
         })
     };
-    let doc = serde_json::json!({"segments": [pick("restraint", 0..=3, &restraint), pick("vdw", 3..=7, &vdw)]});
+    let frames: Vec<Vec<Vec<f64>>> = leg
+        .windows
+        .iter()
+        .map(|w| w.dudl.chunks(2).map(|c| c.to_vec()).collect())
+        .collect();
+    let doc = serde_json::json!({
+        "segments": [pick("restraint", 0..=3, &restraint), pick("vdw", 3..=7, &vdw)],
+        "frames": frames,
+    });
     let out = scipy_ti(&py, &doc);
     for (m, key) in [(Method::Ti, "trapezoid"), (Method::TiSpline, "spline")] {
         let d = est.estimates[&m];

@@ -118,3 +118,81 @@ fn reads_the_demo_measurements() {
     let mean = m.iter().map(|x| x.dg).sum::<f64>() / 8.0;
     assert!((mean - (-9.0)).abs() < 1.0, "{mean}");
 }
+
+/// A minimal absolute campaign in a temporary folder; `extra` is appended to the
+/// top level and `restraint` is the bound leg's restraint mapping.
+pub(crate) fn absolute_campaign(extra: &str, restraint: &str) -> tempfile::TempDir {
+    let dir = tempfile::tempdir().unwrap();
+    std::fs::create_dir(dir.path().join("templates")).unwrap();
+    std::fs::write(
+        dir.path().join("templates/w.sh.tera"),
+        "echo {{ ligand.id }}\n",
+    )
+    .unwrap();
+    std::fs::write(
+        dir.path().join("campaign.yaml"),
+        format!(
+            r#"campaign: abs
+kind: absolute
+templates: templates
+ligands: [ork-01, ork-02]
+legs:
+  bound:
+    sign: -1
+    restraint: {restraint}
+    lambdas: {{ count: 3, spacing: linear }}
+  free:
+    sign: 1
+    lambdas: {{ count: 3, spacing: linear }}
+stages:
+  - {{ name: run, per: window, template: w.sh.tera }}
+{extra}"#
+        ),
+    )
+    .unwrap();
+    dir
+}
+
+/// A restraint that passes every check.
+pub(crate) const GOOD_RESTRAINT: &str = "{ kind: boresch, r0: 5.0, theta_a: 90, theta_b: 60, k_r: 10, k_theta_a: 10, k_theta_b: 10, k_phi_a: 10, k_phi_b: 10, k_phi_c: 10 }";
+
+fn check(dir: &std::path::Path) -> std::process::Output {
+    assert_cmd::Command::cargo_bin("legwork")
+        .unwrap()
+        .arg("check")
+        .arg(dir.join("campaign.yaml"))
+        .output()
+        .unwrap()
+}
+
+#[test]
+fn check_reads_the_experiment_file_and_refuses_a_bad_row_with_exit_2() {
+    // A dg row in nM is a unit error: `check` must find it (exit 2, file and
+    // line, a hint), before anything runs.
+    let dir = absolute_campaign("experiment: measured.csv\n", GOOD_RESTRAINT);
+    std::fs::write(
+        dir.path().join("measured.csv"),
+        "# invented values\nligand,kind,value,unit\nork-01,ki,12,nM\nork-02,dg,-9.5,nM\n",
+    )
+    .unwrap();
+    let out = check(dir.path());
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(2), "{err}");
+    assert!(err.contains("measured.csv:4"), "{err}");
+    assert!(err.contains("unit 'nM' for a dg"), "{err}");
+    assert!(err.contains("hint:"), "{err}");
+
+    // Fixed, the campaign checks; a measured ligand outside the campaign is a warning.
+    std::fs::write(
+        dir.path().join("measured.csv"),
+        "ligand,kind,value,unit\nork-01,ki,12,nM\nork-02,dg,-9.5,kcal/mol\nork-99,kd,3,uM\n",
+    )
+    .unwrap();
+    let out = check(dir.path());
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert_eq!(out.status.code(), Some(0), "{err}");
+    assert!(
+        err.contains("not in the campaign") && err.contains("ork-99"),
+        "{err}"
+    );
+}

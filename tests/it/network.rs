@@ -1,6 +1,7 @@
 //! The network: weighted least squares, offsets, cycle closure, hysteresis, flags.
 
-use legwork::network::{solve, Measured, MeasuredKind, NetworkEdge, NetworkError, Offset};
+use legwork::network::stats::{compare_all, compare_estimates, rmse};
+use legwork::network::{solve, Anchor, Measured, MeasuredKind, NetworkEdge, NetworkError, Offset};
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 use serde_json::json;
@@ -307,4 +308,139 @@ fn exact_demo_edges_reproduce_the_exact_demo_ligands() {
         n += 1;
     }
     assert_eq!(n, fit.ligands.len());
+}
+
+#[test]
+fn one_measured_ligand_anchors_its_part_and_matches_numpy_with_that_gauge() {
+    // Reference: numpy.linalg.lstsq with the measured ligand's column removed
+    // and its value moved to the right-hand side; σ relative to it from the
+    // inverse of the reduced normal matrix (tests/python/network_lstsq.py).
+    let (_, edges) = random_network(9, 8, 23);
+    let anchor = 4;
+    let fit = solve(&edges, &[measured(anchor, -9.25)], None).unwrap();
+    assert_eq!(fit.offsets, vec![Offset::Measured { count: 1 }]);
+    let index = |name: &str| fit.ligands.iter().position(|l| l.ligand == name).unwrap();
+    let k = index(&id(anchor));
+    let input = json!({
+        "n": fit.ligands.len(),
+        "edges": edges.iter().map(|x| json!([index(&x.a), index(&x.b), x.ddg, x.sigma])).collect::<Vec<_>>(),
+        "anchor": [k, -9.25],
+    });
+    // The anchor is marked, whatever numpy says.
+    for (i, l) in fit.ligands.iter().enumerate() {
+        let want = (i == k).then_some(Anchor::Measured);
+        assert_eq!(l.anchor, want, "{}", l.ligand);
+    }
+    assert_eq!(fit.ligands[k].dg, -9.25);
+    let Some(out) = python("network_lstsq.py", input) else {
+        return;
+    };
+    let g: Vec<f64> = serde_json::from_value(out["g_anchor"].clone()).unwrap();
+    let s: Vec<f64> = serde_json::from_value(out["sigma_anchor"].clone()).unwrap();
+    for (i, l) in fit.ligands.iter().enumerate() {
+        assert!(
+            (l.dg - g[i]).abs() < 1e-9,
+            "{}: {} vs {}",
+            l.ligand,
+            l.dg,
+            g[i]
+        );
+        assert!(
+            (l.sigma - s[i]).abs() < 1e-9,
+            "{}: σ {} vs {}",
+            l.ligand,
+            l.sigma,
+            s[i]
+        );
+    }
+}
+
+#[test]
+fn a_ligand_fixed_by_its_own_measurement_is_not_scored_against_experiment() {
+    // Two parts: {1..5} with three measured ligands, {6, 7} with one (ligand 6
+    // is anchored: its ΔG equals its measurement by construction). The
+    // per-ligand statistics must use the three, and say so.
+    let edges = [
+        e(0, 1, -0.8, 0.2),
+        e(1, 2, 0.5, 0.2),
+        e(2, 3, -0.3, 0.2),
+        e(3, 4, 1.1, 0.2),
+        e(0, 4, 0.4, 0.2),
+        e(5, 6, -0.6, 0.3),
+    ];
+    let meas = [
+        measured(0, -8.0),
+        measured(2, -8.9),
+        measured(4, -7.1),
+        measured(5, -10.2),
+    ];
+    let fit = solve(&edges, &meas, None).unwrap();
+    let anchored: Vec<&str> = fit
+        .ligands
+        .iter()
+        .filter(|l| l.anchor.is_some())
+        .map(|l| l.ligand.as_str())
+        .collect();
+    assert_eq!(anchored, ["ork-06"]);
+    let c = compare_estimates(&fit.ligands, &[], &meas, 3);
+    assert_eq!(c.ligands.n, 3);
+    assert_eq!(c.anchored, ["ork-06"]);
+    // RMSE over exactly the three scored ligands, by hand from the fit.
+    let (p, m): (Vec<f64>, Vec<f64>) = [0, 2, 4]
+        .iter()
+        .map(|&i| {
+            let l = fit.ligands.iter().find(|l| l.ligand == id(i)).unwrap();
+            (l.dg, l.measured.unwrap())
+        })
+        .unzip();
+    assert!((c.ligands.rmse.unwrap().value - rmse(&p, &m).unwrap()).abs() < 1e-12);
+    // The pair form finds the same anchor from the edges.
+    let results: Vec<legwork::cycle::EdgeResult> = edges
+        .iter()
+        .map(|x| edge_result(&x.a, &x.b, x.ddg, x.sigma))
+        .collect();
+    let c2 = compare_all(&fit.ligand_dg(), &results, &meas, 3);
+    assert_eq!(c2.anchored, ["ork-06"]);
+    assert_eq!(c2.ligands, c.ligands);
+    // Edges with both ends measured: none cross; 0→4 is the only one.
+    assert_eq!(c2.edges.n, 1);
+
+    // A named reference ligand is an anchor too (σ = 0 by definition).
+    let fit = solve(&edges[..5], &[], Some("ork-03")).unwrap();
+    let r = fit.ligands.iter().find(|l| l.ligand == "ork-03").unwrap();
+    assert_eq!((r.anchor, r.sigma), (Some(Anchor::Reference), 0.0));
+    assert!(fit
+        .ligands
+        .iter()
+        .filter(|l| l.anchor.is_none())
+        .all(|l| l.sigma > 0.0));
+}
+
+/// An edge result with only the fields the statistics read.
+fn edge_result(a: &str, b: &str, ddg: f64, sigma: f64) -> legwork::cycle::EdgeResult {
+    use legwork::cycle::{combine_edge, LegSpec, LegValue, Subject};
+    let leg = LegSpec {
+        name: "l".into(),
+        sign: 1.0,
+        correction: 0.0,
+        restraint: None,
+    };
+    let v = LegValue {
+        leg: "l".into(),
+        replica: 1,
+        dg: ddg,
+        sigma,
+    };
+    let s = Subject::Edge {
+        a: a.into(),
+        b: b.into(),
+    };
+    combine_edge(
+        &s,
+        &[leg],
+        &[v],
+        298.15,
+        legwork::units::EnergyUnit::KcalPerMol,
+    )
+    .unwrap()
 }

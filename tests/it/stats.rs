@@ -107,3 +107,68 @@ fn small_samples_leave_correlations_undefined() {
     let empty = compare(&[], &[], 1);
     assert!(empty.rmse.is_none());
 }
+
+#[test]
+fn per_ligand_statistics_leave_out_anchored_ligands_and_match_scipy_on_the_rest() {
+    // Reference: scipy.stats.pearsonr / kendalltau and numpy RMSE/MUE
+    // (tests/python/stats_scipy.py) on the pairs that remain once the ligand
+    // whose ΔG is fixed by its own measurement (the only measured ligand of
+    // its part of the network) is left out.
+    use legwork::network::stats::compare_estimates;
+    use legwork::network::{solve, Measured, MeasuredKind, NetworkEdge};
+    let edge = |a: &str, b: &str, ddg| NetworkEdge {
+        a: a.into(),
+        b: b.into(),
+        ddg,
+        sigma: 0.25,
+    };
+    let meas = |l: &str, dg| Measured {
+        ligand: l.into(),
+        dg,
+        kind: MeasuredKind::Dg,
+        value: dg,
+        unit: "kcal/mol".into(),
+        line: 0,
+    };
+    let edges = [
+        edge("p1", "p2", -0.7),
+        edge("p2", "p3", 0.9),
+        edge("p3", "p4", -1.4),
+        edge("p4", "p5", 0.6),
+        edge("p1", "p5", -0.2),
+        edge("q1", "q2", 0.8),
+    ];
+    let measured = [
+        meas("p1", -8.1),
+        meas("p2", -9.0),
+        meas("p3", -7.9),
+        meas("p4", -9.6),
+        meas("p5", -8.6),
+        meas("q1", -6.5),
+    ];
+    let fit = solve(&edges, &measured, None).unwrap();
+    let c = compare_estimates(&fit.ligands, &[], &measured, 9);
+    assert_eq!(c.anchored, ["q1"]);
+    assert_eq!(c.ligands.n, 5);
+    let (p, m): (Vec<f64>, Vec<f64>) = fit
+        .ligands
+        .iter()
+        .filter(|l| l.ligand.starts_with('p'))
+        .map(|l| (l.dg, l.measured.unwrap()))
+        .unzip();
+    let Some(out) = python(
+        "stats_scipy.py",
+        json!({ "cases": [{"pred": p, "meas": m}] }),
+    ) else {
+        return;
+    };
+    let r = &out["results"][0];
+    let close = |a: f64, key: &str| {
+        let b = r[key].as_f64().unwrap();
+        assert!((a - b).abs() < 1e-10, "{key}: {a} vs scipy {b}");
+    };
+    close(c.ligands.rmse.unwrap().value, "rmse");
+    close(c.ligands.mue.unwrap().value, "mue");
+    close(c.ligands.pearson_r.unwrap().value, "pearson");
+    close(c.ligands.kendall_tau.unwrap().value, "kendall");
+}

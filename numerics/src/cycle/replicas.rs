@@ -33,6 +33,14 @@ pub struct ReplicaCombination {
 }
 
 /// Combines replicas given as (value, σ) pairs; `None` when there are none.
+///
+/// ```
+/// use legwork_numerics::cycle::combine_replicas;
+/// let c = combine_replicas(&[(1.0, 0.1), (1.2, 0.2), (1.4, 0.1)]).unwrap();
+/// assert!((c.mean - 1.2).abs() < 1e-12);
+/// assert!((c.sigma - 0.02f64.sqrt()).abs() < 1e-12);
+/// assert!(combine_replicas(&[]).is_none());
+/// ```
 pub fn combine_replicas(values: &[(f64, f64)]) -> Option<ReplicaCombination> {
     let n = values.len();
     if n == 0 {

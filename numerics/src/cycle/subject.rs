@@ -21,7 +21,13 @@ pub enum Subject {
 }
 
 impl Subject {
-    /// The id used in task ids and paths: `a+b` for an edge, the ligand id otherwise.
+    /// The id: `a+b` for an edge, the ligand id otherwise.
+    ///
+    /// ```
+    /// use legwork_numerics::cycle::Subject;
+    /// let e = Subject::Edge { a: "x1".into(), b: "x2".into() };
+    /// assert_eq!(e.id(), "x1+x2");
+    /// ```
     pub fn id(&self) -> String {
         match self {
             Subject::Edge { a, b } => format!("{a}+{b}"),

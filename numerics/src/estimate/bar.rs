@@ -66,6 +66,21 @@ fn sech2_quarter(x: f64) -> f64 {
 /// M = ln(n_F/n_R), by safeguarded Newton on a bracket; and its asymptotic standard
 /// error (Shirts et al. 2003, Phys. Rev. Lett. 91, 140601, Eq. 10, the
 /// maximum-likelihood form of Bennett's variance).
+///
+/// # Errors
+///
+/// [`EstimateError::Insufficient`] with fewer than 2 works in either direction;
+/// [`EstimateError::NotConverged`] when Bennett's equation has no root in reach.
+///
+/// # Examples
+///
+/// Works from two identical states are zero: ΔF = 0.
+///
+/// ```
+/// use legwork_numerics::estimate::bar::bar;
+/// let (df, sigma) = bar(&[0.0; 10], &[0.0; 10]).unwrap();
+/// assert!(df.abs() < 1e-12 && sigma >= 0.0);
+/// ```
 pub fn bar(wf: &[f64], wr: &[f64]) -> Result<(f64, f64), EstimateError> {
     let x = bar_solve(wf, wr, 1e-13)?;
     Ok((x, bar_sigma(wf, wr, x)))
@@ -73,6 +88,19 @@ pub fn bar(wf: &[f64], wr: &[f64]) -> Result<(f64, f64), EstimateError> {
 
 /// ΔF of Bennett's equation to a relative tolerance `tol`, without the variance (a
 /// cheap starting point for MBAR needs no more than 1e-7).
+///
+/// # Errors
+///
+/// As [`bar`].
+///
+/// # Examples
+///
+/// ```
+/// use legwork_numerics::estimate::bar::bar_solve;
+/// // a constant work of 1 kT both ways (u_1 − u_0 = 1 everywhere): ΔF = 1
+/// let df = bar_solve(&[1.0; 8], &[-1.0; 8], 1e-12).unwrap();
+/// assert!((df - 1.0).abs() < 1e-9);
+/// ```
 pub fn bar_solve(wf: &[f64], wr: &[f64], tol: f64) -> Result<f64, EstimateError> {
     let (nf, nr) = (wf.len() as f64, wr.len() as f64);
     if wf.len() < 2 || wr.len() < 2 {
@@ -181,6 +209,15 @@ fn bar_sigma(wf: &[f64], wr: &[f64], x: f64) -> f64 {
 /// ψ_F = (f_F − ⟨f_F⟩)/D, ψ_R = −(f_R − ⟨f_R⟩)/D and D = Σ f(1 − f) over all samples.
 /// Adjacent pairs share a window; the covariance of their estimates is the
 /// covariance of these influences over that window's samples.
+///
+/// # Examples
+///
+/// ```
+/// use legwork_numerics::estimate::bar::bar_influence;
+/// let (f, r) = bar_influence(&[0.1, -0.2, 0.3], &[0.0, 0.2], 0.0);
+/// assert_eq!((f.len(), r.len()), (3, 2));
+/// assert!(f.iter().sum::<f64>().abs() < 1e-12); // centred
+/// ```
 pub fn bar_influence(wf: &[f64], wr: &[f64], df: f64) -> (Vec<f64>, Vec<f64>) {
     let m = (wf.len() as f64 / wr.len() as f64).ln();
     let ff: Vec<f64> = wf.iter().map(|&w| fermi(m + w - df)).collect();

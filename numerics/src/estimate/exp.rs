@@ -7,6 +7,19 @@ use super::fastexp::exp_nonpos;
 /// w = u_target − u_sampled over samples of the sampled state, and its standard
 /// error by the delta method, σ² = Var(e^{−w}) / (N ⟨e^{−w}⟩²). Computed with a
 /// log-sum-exp shift so large works do not overflow.
+///
+/// # Errors
+///
+/// [`EstimateError::Insufficient`] with fewer than 2 works.
+///
+/// # Examples
+///
+/// ```
+/// use legwork_numerics::estimate::exp::exp_average;
+/// // the same work on every sample: ΔF is that work, with no spread
+/// let (df, sigma) = exp_average(&[2.5; 20]).unwrap();
+/// assert!((df - 2.5).abs() < 1e-12 && sigma.abs() < 1e-12);
+/// ```
 pub fn exp_average(w: &[f64]) -> Result<(f64, f64), EstimateError> {
     let n = w.len();
     if n < 2 {

@@ -1,7 +1,8 @@
 //! One leg from its windows: equilibration and decorrelation per window, every
-//! estimator asked for, overlap, convergence and warnings.
+//! estimator asked for, overlap, convergence, reliability and warnings.
 
 use super::bar::{bar, bar_influence, bar_solve};
+use super::checks;
 use super::correlation::{
     at_start, detect_equilibration, statistical_inefficiency, subsample, Equilibrated,
 };
@@ -10,7 +11,8 @@ use super::exp::exp_average;
 use super::mbar::{solve, MbarBlock, MbarSettings, MbarSolution};
 use super::options::{Equilibration, EstimateOptions, Method, Subsample};
 use super::result::*;
-use super::ti::{integrate, path_weights};
+use super::ti::path_weights;
+use super::warning::LegWarning;
 use crate::samples::{LegSamples, WindowSamples};
 use rayon::prelude::*;
 use std::collections::BTreeMap;
@@ -20,6 +22,17 @@ use std::time::Instant;
 /// energy-based estimators (EXP, BAR, MBAR): the reduced energy difference between
 /// the two neighbours of the sampled state, u_{k+1} − u_{k−1} (one-sided at the ends;
 /// the sampled reduced potential for a one-state leg).
+///
+/// # Examples
+///
+/// ```
+/// use legwork_numerics::estimate::energy_series;
+/// use legwork_numerics::samples::WindowSamples;
+/// // state 1 of three, two frames: u_2 − u_0 per frame
+/// let w = WindowSamples::from_reduced(1, 300.0, vec![0.0, 0.5, 1.0],
+///     vec![1.0, 2.0, 4.0, 0.0, 0.0, 3.0], Vec::new());
+/// assert_eq!(energy_series(&w), vec![3.0, 3.0]);
+/// ```
 pub fn energy_series(w: &WindowSamples) -> Vec<f64> {
     energy_sweep(w, false).0
 }
@@ -68,31 +81,60 @@ fn energy_sweep(w: &WindowSamples, neighbours: bool) -> (Vec<f64>, [Vec<f64>; 2]
 }
 
 /// The series for TI: dU/dλ summed over components.
+///
+/// # Panics
+///
+/// When the window has no dU/dλ (check [`WindowSamples::has_dudl`] first).
+///
+/// # Examples
+///
+/// ```
+/// use legwork_numerics::estimate::dudl_series;
+/// use legwork_numerics::samples::WindowSamples;
+/// let w = WindowSamples::from_reduced(0, 300.0, vec![0.0, 1.0],
+///     vec![0.0; 4], vec![1.5, -0.5]);
+/// assert_eq!(dudl_series(&w), vec![1.5, -0.5]);
+/// ```
 pub fn dudl_series(w: &WindowSamples) -> Vec<f64> {
     let c = w.components.len();
+    assert!(
+        w.dudl.len() == w.frames * c,
+        "dudl_series needs dU/dλ for every frame and component"
+    );
     (0..w.frames)
         .map(|n| (0..c).map(|j| w.dudl_at(n, j)).sum())
         .collect()
 }
 
+/// A window's equilibration, the frames used and what correlation is left in
+/// them.
+pub(super) struct Selection {
+    pub(super) eq: Equilibrated,
+    pub(super) rows: Vec<usize>,
+    /// The residual statistical inefficiency of the used frames.
+    pub(super) residual: f64,
+    /// The series the selection was made on (for the drift check).
+    pub(super) series: Vec<f64>,
+}
+
 /// Equilibration and decorrelation of one series under the options.
 fn select(
-    series: &[f64],
+    series: Vec<f64>,
     opts: &EstimateOptions,
     label: &str,
-) -> Result<(Equilibrated, Vec<usize>, f64), EstimateError> {
+) -> Result<Selection, EstimateError> {
     let n = series.len();
     let eq = match opts.equilibration {
-        Equilibration::Auto => detect_equilibration(series),
-        Equilibration::None => at_start(series, 0),
+        Equilibration::Auto => detect_equilibration(&series),
+        Equilibration::None => at_start(&series, 0),
         Equilibration::Frames(t) => {
-            let t = t as usize;
-            if t + 2 > n {
+            let t = usize::try_from(t).unwrap_or(usize::MAX);
+            if t.saturating_add(2) > n {
                 return Err(EstimateError::Insufficient(format!(
-                    "{label}: discarding {t} equilibration frames leaves fewer than 2 of its {n}; lower --equilibration"
+                    "{label}: discarding {t} equilibration frames leaves fewer than 2 of its {n}; discard fewer"
                 )));
             }
-            at_start(series, t)
+            at_start(&series, t)
         }
     };
     let rows = match opts.subsample {
@@ -104,19 +146,72 @@ fn select(
     // it, so error bars stay honest either way.
     let kept: Vec<f64> = rows.iter().map(|&r| series[r]).collect();
     let residual = statistical_inefficiency(&kept);
-    Ok((eq, rows, residual))
+    Ok(Selection {
+        eq,
+        rows,
+        residual,
+        series,
+    })
 }
 
-/// A window's equilibration, the frames used and their residual inefficiency.
-type Selection = (Equilibrated, Vec<usize>, f64);
-
-fn label(w: &WindowSamples) -> String {
+/// The name of a window in messages.
+pub(super) fn label(w: &WindowSamples) -> String {
     format!("window of state {} ({})", w.state, w.source.display())
 }
 
 /// Estimates one leg: G(last state) − G(first state) by every method in `opts`,
 /// in kT, with MBAR's free energies, covariance and overlap, per-window
-/// diagnostics, convergence series and warnings.
+/// diagnostics, convergence series, the estimates that cannot be trusted and
+/// warnings (one per problem).
+///
+/// MBAR always runs (it gives the overlap matrix), but is reported only when
+/// asked for. TI is skipped, with a warning, when the windows have no dU/dλ.
+///
+/// # Errors
+///
+/// [`EstimateError::Insufficient`] when the leg has fewer than 2 states or not one
+/// window per state, a fixed equilibration leaves fewer than 2 frames, or an
+/// estimator has too few samples; [`EstimateError::NotConverged`] when MBAR does
+/// not converge.
+///
+/// # Examples
+///
+/// Two harmonic states u_j(x) = (x − c_j)²/2 with c = 0 and 1 have equal free
+/// energies:
+///
+/// ```
+/// use legwork_numerics::estimate::{estimate_leg, EstimateOptions, Method};
+/// use legwork_numerics::samples::{LegSamples, WindowSamples};
+/// // independent standard normal draws (xorshift and Box–Muller)
+/// let mut state = 0x9e37_79b9_7f4a_7c15u64;
+/// let mut unif = move || {
+///     state ^= state << 13;
+///     state ^= state >> 7;
+///     state ^= state << 17;
+///     ((state >> 11) as f64 + 0.5) / (1u64 << 53) as f64
+/// };
+/// let mut normal = move || (-2.0 * unif().ln()).sqrt() * (std::f64::consts::TAU * unif()).cos();
+/// let lambdas = vec![0.0, 1.0];
+/// let mut window = |state: usize, centre: f64| {
+///     let u = (0..2000)
+///         .flat_map(|_| {
+///             let x = centre + normal();
+///             [0.5 * x * x, 0.5 * (x - 1.0) * (x - 1.0)]
+///         })
+///         .collect();
+///     WindowSamples::from_reduced(state, 300.0, lambdas.clone(), u, Vec::new())
+/// };
+/// let leg = LegSamples::from_windows(vec![window(0, 0.0), window(1, 1.0)]);
+/// let opts = EstimateOptions {
+///     methods: vec![Method::Mbar, Method::Bar],
+///     ..Default::default()
+/// };
+/// let est = estimate_leg(&leg, &opts).unwrap();
+/// let mbar = est.estimates[&Method::Mbar];
+/// assert!(mbar.delta_g.abs() < 4.0 * mbar.sigma, "{mbar:?}");
+/// assert!(est.is_reliable(Method::Mbar));
+/// assert!(est.warning_details.is_empty(), "{:?}", est.warnings);
+/// ```
 pub fn estimate_leg(
     leg: &LegSamples,
     opts: &EstimateOptions,
@@ -128,133 +223,256 @@ pub fn estimate_leg(
             leg.windows.len()
         )));
     }
-    let mut warnings = leg.warnings.clone();
+    let mut notes: Vec<LegWarning> = leg
+        .warnings
+        .iter()
+        .map(|m| LegWarning::Input { message: m.clone() })
+        .collect();
+    let methods = methods_for(leg, opts, &mut notes);
+    let want_ti = methods.iter().any(|m| m.uses_dudl());
+    let need_start = !methods.contains(&Method::Bar);
+    let (energy, neighbours) = select_energy(leg, opts, need_start)?;
+    let ti_sel = if want_ti {
+        Some(select_ti(leg, opts)?)
+    } else {
+        None
+    };
+    let frames = Frames::new(&energy, ti_sel.as_deref());
+    let subset = frames.subset();
+    let windows = diagnostics(leg, &energy, ti_sel.as_deref());
+    let identical = checks::windows(leg, opts, &windows, &energy, ti_sel.as_deref(), &mut notes);
+
+    let direct = direct_estimates(leg, &methods, &subset)?;
+    let t0 = Instant::now();
+    let sol = run_mbar(leg, &subset, direct.bar.as_deref(), neighbours)?;
+    let solve_seconds = t0.elapsed().as_secs_f64();
+    let Direct {
+        mut estimates,
+        mut pairs,
+        ti_points,
+        ..
+    } = direct;
+    if methods.contains(&Method::Mbar) {
+        add_mbar(&sol, &mut estimates, &mut pairs);
+    }
+    let overlap: Vec<Vec<f64>> = (0..k)
+        .map(|i| sol.overlap[i * k..(i + 1) * k].to_vec())
+        .collect();
+    let unreliable = checks::reliability(leg, opts, &overlap, &identical, &estimates, &mut notes);
+    notes.extend(checks::disagreements(&estimates, &unreliable));
+
+    let method = methods.first().copied().unwrap_or(Method::Mbar);
+    let convergence = if opts.convergence {
+        Some(convergence(leg, method, &subset, &sol)?)
+    } else {
+        None
+    };
+    let halves = match &convergence {
+        Some(c) => c
+            .points
+            .iter()
+            .find(|p| p.fraction == 0.5)
+            .map(|p| (p.forward, p.reverse)),
+        None => Some(halves(leg, method, &subset, &sol)?),
+    };
+    if let Some((first, last)) = halves {
+        notes.extend(checks::leg_drift(method, first, last, opts.drift_sigmas));
+    }
+
+    let warnings = notes
+        .iter()
+        .map(|w| w.message(crate::units::EnergyUnit::Kt, leg.temperature_k))
+        .collect();
+    Ok(LegEstimate {
+        n_states: k,
+        temperature_k: leg.temperature_k,
+        lambdas: leg.lambdas.clone(),
+        estimates,
+        min_adjacent_overlap: sol.min_adjacent_overlap(),
+        mbar: Some(mbar_details(&sol, solve_seconds)),
+        overlap: Some(overlap),
+        windows,
+        ti_points,
+        pairs,
+        convergence,
+        warnings,
+        warning_details: notes,
+        unreliable,
+    })
+}
+
+/// The methods to run, in table order; TI dropped (with a warning) when the
+/// windows have no dU/dλ.
+fn methods_for(
+    leg: &LegSamples,
+    opts: &EstimateOptions,
+    notes: &mut Vec<LegWarning>,
+) -> Vec<Method> {
     let has_dudl = leg.windows.iter().all(|w| w.has_dudl());
     let mut methods: Vec<Method> = Method::ALL
         .into_iter()
         .filter(|m| opts.methods.contains(m))
         .collect();
     if !has_dudl && methods.iter().any(|m| m.uses_dudl()) {
-        warnings.push("TI skipped: the window files have no dU/dλ column; configure one in reader.columns.dudl".into());
+        notes.push(LegWarning::NoDudl);
         methods.retain(|m| !m.uses_dudl());
     }
-    let want_ti = methods.iter().any(|m| m.uses_dudl());
+    methods
+}
 
-    // Without BAR, MBAR starts from BAR solved loosely on works gathered while the
-    // energy series is read (one sweep over each window's frames, not two).
-    let need_start = !methods.contains(&Method::Bar);
+/// The works towards each window's neighbours, kept when MBAR needs a BAR start.
+type Neighbours = Vec<[Vec<f64>; 2]>;
+
+/// Every window's selection on its energy series. Without BAR, MBAR starts from
+/// BAR solved loosely on works gathered while the energy series is read (one sweep
+/// over each window's frames, not two).
+fn select_energy(
+    leg: &LegSamples,
+    opts: &EstimateOptions,
+    need_start: bool,
+) -> Result<(Vec<Selection>, Neighbours), EstimateError> {
     let swept: Vec<(Selection, [Vec<f64>; 2])> = leg
         .windows
         .par_iter()
         .map(|w| {
             let (series, nb) = energy_sweep(w, need_start);
-            Ok((select(&series, opts, &label(w))?, nb))
+            Ok((select(series, opts, &label(w))?, nb))
         })
         .collect::<Result<_, EstimateError>>()?;
-    let (energy, neighbours): (Vec<Selection>, Vec<[Vec<f64>; 2]>) = swept.into_iter().unzip();
-    let ti_sel: Option<Vec<(Equilibrated, Vec<usize>, f64)>> = if want_ti {
-        Some(
-            leg.windows
-                .par_iter()
-                .map(|w| select(&dudl_series(w), opts, &label(w)))
-                .collect::<Result<_, _>>()?,
-        )
-    } else {
-        None
-    };
-    let used: Vec<&[usize]> = energy.iter().map(|e| e.1.as_slice()).collect();
-    let ti_used: Option<Vec<&[usize]>> = ti_sel
-        .as_ref()
-        .map(|s| s.iter().map(|e| e.1.as_slice()).collect());
-    let ti_g: Option<Vec<f64>> = ti_sel.as_ref().map(|s| s.iter().map(|e| e.2).collect());
-    let resid: Vec<f64> = energy.iter().map(|e| e.2).collect();
+    Ok(swept.into_iter().unzip())
+}
 
-    let windows: Vec<WindowDiagnostics> = leg
-        .windows
+/// Every window's selection on its dU/dλ series.
+fn select_ti(leg: &LegSamples, opts: &EstimateOptions) -> Result<Vec<Selection>, EstimateError> {
+    leg.windows
+        .par_iter()
+        .map(|w| select(dudl_series(w), opts, &label(w)))
+        .collect()
+}
+
+/// The frames every estimator uses and their residual inefficiencies.
+struct Frames<'a> {
+    used: Vec<&'a [usize]>,
+    g: Vec<f64>,
+    ti_used: Option<Vec<&'a [usize]>>,
+    ti_g: Option<Vec<f64>>,
+}
+
+impl<'a> Frames<'a> {
+    fn new(energy: &'a [Selection], ti: Option<&'a [Selection]>) -> Self {
+        Frames {
+            used: energy.iter().map(|e| e.rows.as_slice()).collect(),
+            g: energy.iter().map(|e| e.residual).collect(),
+            ti_used: ti.map(|s| s.iter().map(|e| e.rows.as_slice()).collect()),
+            ti_g: ti.map(|s| s.iter().map(|e| e.residual).collect()),
+        }
+    }
+    fn subset(&self) -> Subset<'_> {
+        Subset {
+            used: &self.used,
+            g: &self.g,
+            ti_used: self.ti_used.as_deref(),
+            ti_g: self.ti_g.as_deref(),
+        }
+    }
+}
+
+fn diagnostics(
+    leg: &LegSamples,
+    energy: &[Selection],
+    ti: Option<&[Selection]>,
+) -> Vec<WindowDiagnostics> {
+    leg.windows
         .iter()
         .enumerate()
         .map(|(i, w)| WindowDiagnostics {
             state: w.state,
             frames: w.frames,
-            equilibration_frames: energy[i].0.start,
-            inefficiency: energy[i].0.inefficiency,
-            used: energy[i].1.len(),
-            ti_equilibration_frames: ti_sel.as_ref().map(|s| s[i].0.start),
-            ti_inefficiency: ti_sel.as_ref().map(|s| s[i].0.inefficiency),
-            ti_used: ti_sel.as_ref().map(|s| s[i].1.len()),
+            equilibration_frames: energy[i].eq.start,
+            inefficiency: energy[i].eq.inefficiency,
+            used: energy[i].rows.len(),
+            ti_equilibration_frames: ti.map(|s| s[i].eq.start),
+            ti_inefficiency: ti.map(|s| s[i].eq.inefficiency),
+            ti_used: ti.map(|s| s[i].rows.len()),
         })
-        .collect();
-    for (w, d) in leg.windows.iter().zip(&windows) {
-        let few = |n: usize, g: f64, what: &str| {
-            format!(
-                "{}: only {n} uncorrelated samples of {what} (statistical inefficiency {g:.1}, fewer than {}); run the window longer",
-                label(w), opts.min_uncorrelated
-            )
-        };
-        if d.used < opts.min_uncorrelated {
-            warnings.push(few(d.used, d.inefficiency, "the energy differences"));
-        }
-        if let (Some(n), Some(g)) = (d.ti_used, d.ti_inefficiency) {
-            if n < opts.min_uncorrelated {
-                warnings.push(few(n, g, "dU/dλ"));
-            }
-        }
-    }
+        .collect()
+}
 
-    let mut estimates = BTreeMap::new();
-    let mut pairs: Vec<PairEstimate> = (0..k - 1)
-        .map(|i| PairEstimate {
-            from: i,
-            to: i + 1,
-            estimates: BTreeMap::new(),
-        })
-        .collect();
-    let mut ti_points = Vec::new();
+/// The estimates made without MBAR, per pair where the method has pairs.
+struct Direct {
+    estimates: BTreeMap<Method, DeltaG>,
+    pairs: Vec<PairEstimate>,
+    ti_points: Vec<TiPoint>,
+    bar: Option<Vec<DeltaG>>,
+}
 
-    let bar_pairs = if methods.contains(&Method::Bar) {
-        Some(bar_pairs(leg, &used, &resid)?)
-    } else {
-        None
+fn direct_estimates(
+    leg: &LegSamples,
+    methods: &[Method],
+    s: &Subset,
+) -> Result<Direct, EstimateError> {
+    let k = leg.n_states();
+    let mut out = Direct {
+        estimates: BTreeMap::new(),
+        pairs: (0..k - 1)
+            .map(|i| PairEstimate {
+                from: i,
+                to: i + 1,
+                estimates: BTreeMap::new(),
+            })
+            .collect(),
+        ti_points: Vec::new(),
+        bar: None,
     };
-    for m in &methods {
+    if methods.contains(&Method::Bar) {
+        out.bar = Some(bar_pairs(leg, s.used, s.g)?);
+    }
+    for m in methods {
         let est = match m {
             Method::Ti | Method::TiSpline => {
                 let (d, pts) = ti(
                     leg,
-                    ti_used.as_ref().expect("selected"),
-                    ti_g.as_ref().expect("selected"),
+                    s.ti_used.expect("selected"),
+                    s.ti_g.expect("selected"),
                     *m == Method::TiSpline,
                 );
-                if ti_points.is_empty() {
-                    ti_points = pts;
+                if out.ti_points.is_empty() {
+                    out.ti_points = pts;
                 }
                 d
             }
             Method::ExpForward | Method::ExpReverse => {
-                let per = exp_pairs(leg, &used, &resid, *m == Method::ExpForward)?;
-                for (p, d) in pairs.iter_mut().zip(&per) {
+                let per = exp_pairs(leg, s.used, s.g, *m == Method::ExpForward)?;
+                for (p, d) in out.pairs.iter_mut().zip(&per) {
                     p.estimates.insert(*m, *d);
                 }
                 sum(&per)
             }
             Method::Bar => {
-                let per = bar_pairs.as_ref().expect("computed");
-                for (p, d) in pairs.iter_mut().zip(per) {
+                let per = out.bar.as_ref().expect("computed");
+                for (p, d) in out.pairs.iter_mut().zip(per) {
                     p.estimates.insert(Method::Bar, *d);
                 }
-                bar_total(leg, &used, &resid, per)
+                bar_total(leg, s.used, s.g, per)
             }
             Method::Mbar => continue,
         };
-        estimates.insert(*m, est);
+        out.estimates.insert(*m, est);
     }
+    Ok(out)
+}
 
-    // MBAR always runs: it gives the overlap matrix even when not asked for.
-    let t0 = Instant::now();
-    // MBAR starts from the running sum of BAR over adjacent pairs (loosely
-    // converged when BAR itself was not asked for): near the solution, Newton
-    // needs two or three passes over the samples.
-    let steps: Vec<f64> = match &bar_pairs {
+/// MBAR from the running sum of BAR over adjacent pairs (loosely converged when BAR
+/// itself was not asked for): near the solution, Newton needs two or three passes
+/// over the samples.
+fn run_mbar(
+    leg: &LegSamples,
+    s: &Subset,
+    bar: Option<&[DeltaG]>,
+    neighbours: Neighbours,
+) -> Result<MbarSolution, EstimateError> {
+    let k = leg.n_states();
+    let steps: Vec<f64> = match bar {
         Some(p) => p.iter().map(|d| d.delta_g).collect(),
         None => (0..k - 1)
             .into_par_iter()
@@ -262,8 +480,8 @@ pub fn estimate_leg(
                 let pick = |w: &[f64], rows: &[usize]| -> Vec<f64> {
                     rows.iter().map(|&n| w[n]).collect()
                 };
-                let wf = pick(&neighbours[i][1], used[i]);
-                let wr = pick(&neighbours[i + 1][0], used[i + 1]);
+                let wf = pick(&neighbours[i][1], s.used[i]);
+                let wr = pick(&neighbours[i + 1][0], s.used[i + 1]);
                 bar_solve(&wf, &wr, 1e-7).unwrap_or(0.0)
             })
             .collect(),
@@ -273,95 +491,39 @@ pub fn estimate_leg(
     for d in steps {
         start.push(start.last().expect("non-empty") + d);
     }
-    let init = Some(start);
-    let sol = mbar(leg, &used, &resid, init)?;
-    let solve_seconds = t0.elapsed().as_secs_f64();
-    let (d, s) = sol.difference(0, k - 1);
-    if methods.contains(&Method::Mbar) {
-        estimates.insert(
-            Method::Mbar,
-            DeltaG {
-                delta_g: d,
-                sigma: s,
-            },
-        );
-        for p in pairs.iter_mut() {
-            let (d, s) = sol.difference(p.from, p.to);
-            p.estimates.insert(
-                Method::Mbar,
-                DeltaG {
-                    delta_g: d,
-                    sigma: s,
-                },
-            );
-        }
-    }
-    let overlap: Vec<Vec<f64>> = (0..k)
-        .map(|i| sol.overlap[i * k..(i + 1) * k].to_vec())
-        .collect();
-    let min_adjacent_overlap = sol.min_adjacent_overlap();
-    for i in 0..k - 1 {
-        let o = overlap[i][i + 1].min(overlap[i + 1][i]);
-        if o < opts.min_overlap {
-            warnings.push(format!(
-                "states {i} and {} (λ {} → {}) overlap only {o:.3} (below {}, common practice): add a window between them or sample both longer",
-                i + 1, leg.lambdas[i], leg.lambdas[i + 1], opts.min_overlap
-            ));
-        }
-    }
-    let names: Vec<&Method> = estimates.keys().collect();
-    for (a, ma) in names.iter().enumerate() {
-        for mb in &names[a + 1..] {
-            let (x, y) = (estimates[*ma], estimates[*mb]);
-            let combined = (x.sigma * x.sigma + y.sigma * y.sigma).sqrt();
-            if (x.delta_g - y.delta_g).abs() > 2.0 * combined {
-                warnings.push(format!(
-                    "{ma} and {mb} disagree: {:.3} vs {:.3} kT, more than twice their combined σ ({combined:.3} kT); check the overlap, equilibration and λ spacing (TI also needs enough windows where dU/dλ curves)",
-                    x.delta_g, y.delta_g
-                ));
-            }
-        }
-    }
+    mbar(leg, s.used, s.g, Some(start))
+}
 
-    let convergence = if opts.convergence {
-        let method = methods.first().copied().unwrap_or(Method::Mbar);
-        Some(convergence(
-            leg,
-            method,
-            &used,
-            &resid,
-            ti_used.as_deref(),
-            ti_g.as_deref(),
-            &sol,
-        )?)
-    } else {
-        None
+fn add_mbar(
+    sol: &MbarSolution,
+    estimates: &mut BTreeMap<Method, DeltaG>,
+    pairs: &mut [PairEstimate],
+) {
+    let dg = |i, j| {
+        let (d, s) = sol.difference(i, j);
+        DeltaG {
+            delta_g: d,
+            sigma: s,
+        }
     };
+    estimates.insert(Method::Mbar, dg(0, sol.n_states() - 1));
+    for p in pairs.iter_mut() {
+        p.estimates.insert(Method::Mbar, dg(p.from, p.to));
+    }
+}
 
-    let sigma_f = (0..k).map(|j| sol.difference(0, j).1).collect();
-    let covariance = (0..k)
-        .map(|i| sol.covariance[i * k..(i + 1) * k].to_vec())
-        .collect();
-    Ok(LegEstimate {
-        n_states: k,
-        temperature_k: leg.temperature_k,
-        lambdas: leg.lambdas.clone(),
-        estimates,
-        mbar: Some(MbarDetails {
-            f: sol.f.clone(),
-            sigma_f,
-            covariance,
-            iterations: sol.iterations,
-            solve_seconds,
-        }),
-        overlap: Some(overlap),
-        min_adjacent_overlap,
-        windows,
-        ti_points,
-        pairs,
-        convergence,
-        warnings,
-    })
+fn mbar_details(sol: &MbarSolution, solve_seconds: f64) -> MbarDetails {
+    let k = sol.n_states();
+    MbarDetails {
+        f: sol.f.clone(),
+        sigma_f: (0..k).map(|j| sol.difference(0, j).1).collect(),
+        covariance: (0..k)
+            .map(|i| sol.covariance[i * k..(i + 1) * k].to_vec())
+            .collect(),
+        iterations: sol.iterations,
+        passes: sol.passes,
+        solve_seconds,
+    }
 }
 
 fn sum(per: &[DeltaG]) -> DeltaG {
@@ -471,6 +633,7 @@ fn bar_total(leg: &LegSamples, used: &[&[usize]], g: &[f64], per: &[DeltaG]) -> 
 }
 
 /// MBAR on the used frames. Θ is scaled by the sample-weighted mean residual
+/// MBAR on the used frames. Θ is scaled by the sample-weighted mean residual
 /// inefficiency (exact when every window has the same one, an approximation
 /// otherwise).
 fn mbar(
@@ -508,40 +671,43 @@ fn mbar(
     Ok(sol)
 }
 
-/// TI from the used frames: each window's SEM is sqrt(g s²/n) with g the residual
-/// inefficiency of its dU/dλ series.
-fn ti(leg: &LegSamples, used: &[&[usize]], g: &[f64], spline: bool) -> (DeltaG, Vec<TiPoint>) {
+/// TI from the used frames.
+///
+/// Both rules are linear in the window means, ΔG = Σ_i Σ_c w_ic ⟨y_c⟩_i, so the
+/// estimate is a sum over windows of the mean of the per-frame total
+/// z_n = Σ_c w_ic y_nc (y_c the dU/dλ of component c). Its variance is
+/// Σ_i g_i s²(z)_i / n_i with g_i the residual inefficiency of z over the used
+/// frames: the covariance between components sampled from the same frames is in
+/// it, where summing each component's variance would drop it. The per-window
+/// points carry each component's own standard error (`g_points`, the residual
+/// inefficiency of the window's dU/dλ series).
+fn ti(
+    leg: &LegSamples,
+    used: &[&[usize]],
+    g_points: &[f64],
+    spline: bool,
+) -> (DeltaG, Vec<TiPoint>) {
+    let weights: Vec<Vec<f64>> = leg
+        .component_lambdas
+        .iter()
+        .map(|x| path_weights(x, spline))
+        .collect();
     let mut total = 0.0;
     let mut var = 0.0;
-    let mut points = Vec::new();
-    for (c, name) in leg.components.iter().enumerate() {
-        let x = &leg.component_lambdas[c];
-        let mut mean = Vec::with_capacity(leg.n_states());
-        let mut sem = Vec::with_capacity(leg.n_states());
-        for (i, w) in leg.windows.iter().enumerate() {
-            let rows = used[i];
-            let n = rows.len() as f64;
-            let m = rows.iter().map(|&r| w.dudl_at(r, c)).sum::<f64>() / n;
-            let v = rows
-                .iter()
-                .map(|&r| (w.dudl_at(r, c) - m).powi(2))
-                .sum::<f64>()
-                / (n - 1.0).max(1.0);
-            let s = (v * g[i] / n).sqrt();
-            mean.push(m);
-            sem.push(s);
-            points.push(TiPoint {
-                state: i,
-                component: name.clone(),
-                lambda: x[i],
-                mean: m,
-                sem: s,
-            });
-        }
-        let (v, s) = integrate(&path_weights(x, spline), &mean, &sem);
-        total += v;
-        var += s * s;
+    for (i, w) in leg.windows.iter().enumerate() {
+        let z: Vec<f64> = used[i]
+            .iter()
+            .map(|&r| {
+                (0..weights.len())
+                    .map(|c| weights[c][i] * w.dudl_at(r, c))
+                    .sum()
+            })
+            .collect();
+        let (m, v) = mean_var(&z);
+        total += m;
+        var += v * statistical_inefficiency(&z) / z.len() as f64;
     }
+    let points = ti_points(leg, used, g_points);
     (
         DeltaG {
             delta_g: total,
@@ -551,6 +717,35 @@ fn ti(leg: &LegSamples, used: &[&[usize]], g: &[f64], spline: bool) -> (DeltaG, 
     )
 }
 
+/// Mean and sample variance (n − 1) of a series (variance 0 below 2 values).
+fn mean_var(x: &[f64]) -> (f64, f64) {
+    let n = x.len() as f64;
+    let m = x.iter().sum::<f64>() / n;
+    let v = x.iter().map(|v| (v - m).powi(2)).sum::<f64>() / (n - 1.0).max(1.0);
+    (m, v)
+}
+
+/// Every window's mean dU/dλ per component, each with its standard error
+/// sqrt(g s²/n).
+fn ti_points(leg: &LegSamples, used: &[&[usize]], g: &[f64]) -> Vec<TiPoint> {
+    let mut points = Vec::new();
+    for (c, name) in leg.components.iter().enumerate() {
+        for (i, w) in leg.windows.iter().enumerate() {
+            let y: Vec<f64> = used[i].iter().map(|&r| w.dudl_at(r, c)).collect();
+            let (m, v) = mean_var(&y);
+            points.push(TiPoint {
+                state: i,
+                component: name.clone(),
+                lambda: leg.component_lambdas[c][i],
+                mean: m,
+                sem: (v * g[i] / y.len() as f64).sqrt(),
+            });
+        }
+    }
+    points
+}
+/// The frames of each window (and their residual inefficiencies) an estimate is
+/// made from.
 struct Subset<'a> {
     used: &'a [&'a [usize]],
     g: &'a [f64],
@@ -590,19 +785,17 @@ fn method_on(
     })
 }
 
-/// ΔG from the first and the last 10 %, 20 %, … 100 % of each window's used frames
+/// `method` on the first (`head`) or the last `frac` of every window's used frames
 /// (residual inefficiencies taken from the whole).
-#[allow(clippy::too_many_arguments)]
-fn convergence(
+fn on_share(
     leg: &LegSamples,
     method: Method,
-    used: &[&[usize]],
-    g: &[f64],
-    ti_used: Option<&[&[usize]]>,
-    ti_g: Option<&[f64]>,
+    s: &Subset,
     sol: &MbarSolution,
-) -> Result<Convergence, EstimateError> {
-    let share = |rows: &[usize], frac: f64, head: bool| -> Vec<usize> {
+    frac: f64,
+    head: bool,
+) -> Result<DeltaG, EstimateError> {
+    let share = |rows: &[usize]| -> Vec<usize> {
         let n = ((rows.len() as f64 * frac).ceil() as usize).clamp(2.min(rows.len()), rows.len());
         if head {
             rows[..n].to_vec()
@@ -610,33 +803,48 @@ fn convergence(
             rows[rows.len() - n..].to_vec()
         }
     };
-    let mut points = Vec::new();
-    for step in 1..=10 {
-        let frac = step as f64 / 10.0;
-        let mut pair = [DeltaG {
-            delta_g: 0.0,
-            sigma: 0.0,
-        }; 2];
-        for (slot, head) in [true, false].into_iter().enumerate() {
-            let u: Vec<Vec<usize>> = used.iter().map(|r| share(r, frac, head)).collect();
-            let ur: Vec<&[usize]> = u.iter().map(|v| v.as_slice()).collect();
-            let t: Option<Vec<Vec<usize>>> =
-                ti_used.map(|tu| tu.iter().map(|r| share(r, frac, head)).collect());
-            let tr: Option<Vec<&[usize]>> =
-                t.as_ref().map(|t| t.iter().map(|v| v.as_slice()).collect());
-            let subset = Subset {
-                used: &ur,
-                g,
-                ti_used: tr.as_deref(),
-                ti_g,
-            };
-            pair[slot] = method_on(leg, method, &subset, &sol.f)?;
-        }
-        points.push(ConvergencePoint {
-            fraction: frac,
-            forward: pair[0],
-            reverse: pair[1],
-        });
-    }
+    let u: Vec<Vec<usize>> = s.used.iter().map(|r| share(r)).collect();
+    let ur: Vec<&[usize]> = u.iter().map(|v| v.as_slice()).collect();
+    let t: Option<Vec<Vec<usize>>> = s.ti_used.map(|tu| tu.iter().map(|r| share(r)).collect());
+    let tr: Option<Vec<&[usize]>> = t.as_ref().map(|t| t.iter().map(|v| v.as_slice()).collect());
+    let part = Subset {
+        used: &ur,
+        g: s.g,
+        ti_used: tr.as_deref(),
+        ti_g: s.ti_g,
+    };
+    method_on(leg, method, &part, &sol.f)
+}
+
+/// ΔG from the first and the last 10 %, 20 %, … 100 % of each window's used frames.
+fn convergence(
+    leg: &LegSamples,
+    method: Method,
+    s: &Subset,
+    sol: &MbarSolution,
+) -> Result<Convergence, EstimateError> {
+    let points = (1..=10)
+        .map(|step| {
+            let frac = step as f64 / 10.0;
+            Ok(ConvergencePoint {
+                fraction: frac,
+                forward: on_share(leg, method, s, sol, frac, true)?,
+                reverse: on_share(leg, method, s, sol, frac, false)?,
+            })
+        })
+        .collect::<Result<_, EstimateError>>()?;
     Ok(Convergence { method, points })
+}
+
+/// ΔG from the first and from the last half of every window's used frames.
+fn halves(
+    leg: &LegSamples,
+    method: Method,
+    s: &Subset,
+    sol: &MbarSolution,
+) -> Result<(DeltaG, DeltaG), EstimateError> {
+    Ok((
+        on_share(leg, method, s, sol, 0.5, true)?,
+        on_share(leg, method, s, sol, 0.5, false)?,
+    ))
 }

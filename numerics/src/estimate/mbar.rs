@@ -59,6 +59,9 @@ pub struct MbarSolution {
     pub overlap: Vec<f64>,
     /// Newton iterations taken.
     pub iterations: usize,
+    /// Passes over the samples (each one sweep computing weights; a measure of the
+    /// solve's cost that does not depend on the machine).
+    pub passes: usize,
     /// Final max |gradient| / N.
     pub gradient: f64,
 }
@@ -69,6 +72,10 @@ impl MbarSolution {
         self.f.len()
     }
     /// f_j − f_i and its standard error sqrt(Θ_ii + Θ_jj − 2Θ_ij).
+    ///
+    /// # Panics
+    ///
+    /// When `i` or `j` is not a state.
     pub fn difference(&self, i: usize, j: usize) -> (f64, f64) {
         let k = self.n_states();
         let t = |a: usize, b: usize| self.covariance[a * k + b];
@@ -97,9 +104,6 @@ struct Pass {
 /// solution by about this much relative, far below the precision of an error bar
 /// (whose own statistical uncertainty is of order 1/√N).
 const FINAL_STEP: f64 = 1e-5;
-
-/// Passes over the samples made by this process (diagnostics and benchmarks).
-pub static PASSES: std::sync::atomic::AtomicUsize = std::sync::atomic::AtomicUsize::new(0);
 
 /// Samples per work item: the weights of one chunk (CHUNK × K) stay in cache for
 /// the Gram update.
@@ -219,7 +223,6 @@ fn chunk(input: &ChunkIn, acc: &mut Acc) {
 }
 
 fn pass(blocks: &[MbarBlock], k: usize, c: &[f64], gram: bool) -> Pass {
-    PASSES.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
     let kp = k.div_ceil(4) * 4;
     let mut cpad = c.to_vec();
     cpad.resize(kp, f64::NEG_INFINITY);
@@ -287,23 +290,47 @@ fn pass(blocks: &[MbarBlock], k: usize, c: &[f64], gram: bool) -> Pass {
 }
 
 /// Solves the MBAR equations for `k` states from the samples in `blocks`.
-/// Every state must have at least one sample.
+///
+/// The Newton iteration starts from `settings.initial` (zeros when absent) and stops
+/// when max_k |∂F/∂f_k| / N falls below `settings.tolerance`; the covariance and
+/// overlap are evaluated at the solution.
+///
+/// # Errors
+///
+/// [`EstimateError::Insufficient`] when a state has no samples;
+/// [`EstimateError::NotConverged`] when the iteration limit is reached, the line
+/// search fails or the Hessian is singular (states that share no weight at all).
+///
+/// # Panics
+///
+/// When `settings.initial` does not hold one value per state, or a block lists a
+/// frame outside its reduced potentials.
+///
+/// # Examples
+///
+/// Two identical states (every frame has the same reduced potential at both)
+/// have equal free energies:
+///
+/// ```
+/// use legwork_numerics::estimate::mbar::{solve, MbarBlock, MbarSettings};
+/// // 3 frames sampled from state 0 and 3 from state 1, each `frames × 2`.
+/// let u0 = [0.1, 0.1, 0.5, 0.5, 0.9, 0.9];
+/// let u1 = [0.2, 0.2, 0.4, 0.4, 0.8, 0.8];
+/// let rows = [0, 1, 2];
+/// let blocks = [
+///     MbarBlock { state: 0, u: &u0, rows: &rows },
+///     MbarBlock { state: 1, u: &u1, rows: &rows },
+/// ];
+/// let sol = solve(&blocks, 2, &MbarSettings::default()).unwrap();
+/// assert!(sol.f[1].abs() < 1e-12);
+/// assert!(sol.passes >= 1);
+/// ```
 pub fn solve(
     blocks: &[MbarBlock],
     k: usize,
     settings: &MbarSettings,
 ) -> Result<MbarSolution, EstimateError> {
-    let mut counts = vec![0.0f64; k];
-    for b in blocks {
-        counts[b.state] += b.rows.len() as f64;
-    }
-    if let Some(s) = counts.iter().position(|&n| n == 0.0) {
-        return Err(EstimateError::Insufficient(format!(
-            "MBAR: state {s} has no samples; every state needs a window with samples"
-        )));
-    }
-    let n_total: f64 = counts.iter().sum();
-    let log_n: Vec<f64> = counts.iter().map(|n| n.ln()).collect();
+    let problem = Problem::new(blocks, k)?;
     let mut f = settings.initial.clone().unwrap_or_else(|| vec![0.0; k]);
     assert_eq!(f.len(), k, "initial free energies: one per state");
     let f0 = f[0];
@@ -314,98 +341,188 @@ pub fn solve(
             covariance: vec![0.0],
             overlap: vec![1.0],
             iterations: 0,
+            passes: 0,
             gradient: 0.0,
         });
     }
-    let shift = |f: &[f64]| -> Vec<f64> { f.iter().zip(&log_n).map(|(a, b)| a + b).collect() };
-    let grad_of =
-        |p: &Pass| -> Vec<f64> { p.colsum.iter().zip(&counts).map(|(a, b)| a - b).collect() };
-    let gnorm = |g: &[f64]| g.iter().fold(0.0f64, |m, v| m.max(v.abs())) / n_total;
+    let newton = problem.newton(f, settings)?;
+    let (covariance, overlap) = problem.covariance_and_overlap(&newton.gram_pass);
+    Ok(MbarSolution {
+        f: newton.f,
+        covariance,
+        overlap,
+        iterations: newton.iterations,
+        passes: problem.passes.get(),
+        gradient: newton.gradient,
+    })
+}
 
-    // Every step is a full Newton step, so the pass at each new point computes the
-    // Gram matrix (one small matrix product per chunk of samples) for the next
-    // step. The exception is a step below FINAL_STEP in every f: its pass is
-    // expected to show convergence, so it skips the Gram matrix, and the covariance
-    // and overlap come from the pass before it. When that pass does not converge
-    // after all, the Gram matrix is computed at that point before the next step.
-    let mut cur = pass(blocks, k, &shift(&f), true);
-    // The pass with a Gram matrix that `cur` replaced when `cur` has none.
-    let mut gram_pass: Option<Pass> = None;
-    let mut g = grad_of(&cur);
-    let mut iterations = 0;
-    let mut last_norm = gnorm(&g);
-    while last_norm >= settings.tolerance {
-        if iterations >= settings.max_iterations {
-            return Err(EstimateError::NotConverged(format!(
-                "MBAR did not converge in {} iterations (max |gradient|/N = {last_norm:.3e}); the states may not overlap",
-                settings.max_iterations
+/// The samples of an MBAR problem with their counts, and the passes made over them.
+struct Problem<'a> {
+    blocks: &'a [MbarBlock<'a>],
+    k: usize,
+    counts: Vec<f64>,
+    log_n: Vec<f64>,
+    n_total: f64,
+    passes: std::cell::Cell<usize>,
+}
+
+/// Where the Newton iteration stopped, with the last pass that has a Gram matrix.
+struct Newton {
+    f: Vec<f64>,
+    iterations: usize,
+    gradient: f64,
+    gram_pass: Pass,
+}
+
+impl<'a> Problem<'a> {
+    fn new(blocks: &'a [MbarBlock<'a>], k: usize) -> Result<Self, EstimateError> {
+        let mut counts = vec![0.0f64; k];
+        for b in blocks {
+            counts[b.state] += b.rows.len() as f64;
+        }
+        if let Some(s) = counts.iter().position(|&n| n == 0.0) {
+            return Err(EstimateError::Insufficient(format!(
+                "MBAR: state {s} has no samples; every state needs a window with samples"
             )));
         }
-        iterations += 1;
-        if cur.gram.is_empty() {
-            cur = pass(blocks, k, &shift(&f), true);
-            gram_pass = None;
+        Ok(Problem {
+            blocks,
+            k,
+            n_total: counts.iter().sum(),
+            log_n: counts.iter().map(|n| n.ln()).collect(),
+            counts,
+            passes: std::cell::Cell::new(0),
+        })
+    }
+
+    /// One pass at free energies `f`.
+    fn pass_at(&self, f: &[f64], gram: bool) -> Pass {
+        self.passes.set(self.passes.get() + 1);
+        let c: Vec<f64> = f.iter().zip(&self.log_n).map(|(a, b)| a + b).collect();
+        pass(self.blocks, self.k, &c, gram)
+    }
+
+    fn gradient(&self, p: &Pass) -> Vec<f64> {
+        p.colsum
+            .iter()
+            .zip(&self.counts)
+            .map(|(a, b)| a - b)
+            .collect()
+    }
+
+    fn norm(&self, g: &[f64]) -> f64 {
+        g.iter().fold(0.0f64, |m, v| m.max(v.abs())) / self.n_total
+    }
+
+    /// Newton's method from `f` (f_0 = 0) to the tolerance.
+    ///
+    /// Every step is a full Newton step, so the pass at each new point computes the
+    /// Gram matrix (one small matrix product per chunk of samples) for the next
+    /// step. The exception is a step below FINAL_STEP in every f: its pass is
+    /// expected to show convergence, so it skips the Gram matrix, and the
+    /// covariance and overlap come from the pass before it. When that pass does not
+    /// converge after all, the Gram matrix is computed at that point before the
+    /// next step.
+    fn newton(&self, mut f: Vec<f64>, settings: &MbarSettings) -> Result<Newton, EstimateError> {
+        let mut cur = self.pass_at(&f, true);
+        // The pass with a Gram matrix that `cur` replaced when `cur` has none.
+        let mut gram_pass: Option<Pass> = None;
+        let mut g = self.gradient(&cur);
+        let mut iterations = 0;
+        let mut last_norm = self.norm(&g);
+        while last_norm >= settings.tolerance {
+            if iterations >= settings.max_iterations {
+                return Err(EstimateError::NotConverged(format!(
+                    "MBAR did not converge in {} iterations (max |gradient|/N = {last_norm:.3e}); the states may not overlap",
+                    settings.max_iterations
+                )));
+            }
+            iterations += 1;
+            if cur.gram.is_empty() {
+                cur = self.pass_at(&f, true);
+                gram_pass = None;
+            }
+            let Some((trial, p, gt)) = self.line_search(&f, &cur, &g, last_norm)? else {
+                break;
+            };
+            let norm = self.norm(&gt);
+            // Below 1e-8 a step that no longer lowers the gradient has hit rounding noise.
+            if norm >= last_norm && last_norm < 1e-8 {
+                break;
+            }
+            f = trial;
+            let replaced = std::mem::replace(&mut cur, p);
+            if cur.gram.is_empty() {
+                gram_pass = Some(replaced);
+            }
+            g = gt;
+            last_norm = norm;
         }
-        let chol = reduced_hessian(&cur, k)?;
+        let gram_pass = if cur.gram.is_empty() {
+            gram_pass.expect("a pass without the Gram matrix follows one with it")
+        } else {
+            cur
+        };
+        Ok(Newton {
+            f,
+            iterations,
+            gradient: last_norm,
+            gram_pass,
+        })
+    }
+
+    /// The Newton step from `f` (where `cur` is the pass, with its Gram matrix, and
+    /// `g` the gradient) with backtracking: the accepted point, its pass and its
+    /// gradient; `None` when no step helps but the gradient is already at rounding
+    /// level.
+    #[allow(clippy::type_complexity)]
+    fn line_search(
+        &self,
+        f: &[f64],
+        cur: &Pass,
+        g: &[f64],
+        last_norm: f64,
+    ) -> Result<Option<(Vec<f64>, Pass, Vec<f64>)>, EstimateError> {
+        let k = self.k;
+        let chol = reduced_hessian(cur, k)?;
         let rhs = DVector::from_iterator(k - 1, g[1..].iter().map(|v| -v));
         let step = chol.solve(&rhs);
         let last_step = step.amax() <= FINAL_STEP;
         let mut t = 1.0;
-        let mut accepted = None;
         for _ in 0..40 {
-            let mut trial = f.clone();
+            let mut trial = f.to_vec();
             for j in 1..k {
                 trial[j] += t * step[j - 1];
             }
-            let p = pass(blocks, k, &shift(&trial), !last_step);
-            let gt = grad_of(&p);
+            let p = self.pass_at(&trial, !last_step);
+            let gt = self.gradient(&p);
             let slack = 1e-12 * cur.objective.abs().max(1.0);
-            if p.objective <= cur.objective + slack || gnorm(&gt) < last_norm {
-                accepted = Some((trial, p, gt));
-                break;
+            if p.objective <= cur.objective + slack || self.norm(&gt) < last_norm {
+                return Ok(Some((trial, p, gt)));
             }
             t *= 0.5;
         }
-        let Some((trial, p, gt)) = accepted else {
-            if last_norm < 1e-8 {
-                break;
-            }
-            return Err(EstimateError::NotConverged(format!(
-                "MBAR line search failed (max |gradient|/N = {last_norm:.3e}); the states may not overlap"
-            )));
-        };
-        let norm = gnorm(&gt);
-        // Below 1e-8 a step that no longer lowers the gradient has hit rounding noise.
-        if norm >= last_norm && last_norm < 1e-8 {
-            break;
+        if last_norm < 1e-8 {
+            return Ok(None);
         }
-        f = trial;
-        let replaced = std::mem::replace(&mut cur, p);
-        if cur.gram.is_empty() {
-            gram_pass = Some(replaced);
-        }
-        g = gt;
-        last_norm = norm;
+        Err(EstimateError::NotConverged(format!(
+            "MBAR line search failed (max |gradient|/N = {last_norm:.3e}); the states may not overlap"
+        )))
     }
-    let fin = if cur.gram.is_empty() {
-        gram_pass.expect("a pass without the Gram matrix follows one with it")
-    } else {
-        cur
-    };
-    let gram = full_gram(&fin.gram, k);
-    // W_nk = p_nk / N_k, so G = Wᵀ W = N⁻¹ (Σ p pᵀ) N⁻¹.
-    let gmat = DMatrix::from_fn(k, k, |a, b| gram[a * k + b] / (counts[a] * counts[b]));
-    let covariance = covariance(&gmat, &counts);
-    let overlap: Vec<f64> = (0..k * k)
-        .map(|i| gmat[(i / k, i % k)] * counts[i % k])
-        .collect();
-    Ok(MbarSolution {
-        f,
-        covariance,
-        overlap,
-        iterations,
-        gradient: last_norm,
-    })
+
+    /// Θ and the overlap matrix from a pass's Gram matrix.
+    fn covariance_and_overlap(&self, fin: &Pass) -> (Vec<f64>, Vec<f64>) {
+        let (k, counts) = (self.k, &self.counts);
+        let gram = full_gram(&fin.gram, k);
+        // W_nk = p_nk / N_k, so G = Wᵀ W = N⁻¹ (Σ p pᵀ) N⁻¹.
+        let gmat = DMatrix::from_fn(k, k, |a, b| gram[a * k + b] / (counts[a] * counts[b]));
+        let covariance = covariance(&gmat, counts);
+        let overlap: Vec<f64> = (0..k * k)
+            .map(|i| gmat[(i / k, i % k)] * counts[i % k])
+            .collect();
+        (covariance, overlap)
+    }
 }
 
 fn full_gram(upper: &[f64], k: usize) -> Vec<f64> {
@@ -418,6 +535,12 @@ fn full_gram(upper: &[f64], k: usize) -> Vec<f64> {
     g
 }
 
+/// The Hessian of F in f_1 … f_{K−1}, factored. Where states share (almost) no
+/// weight the Hessian is singular to rounding in that direction; it is then
+/// damped (Levenberg–Marquardt: H + μ I, μ growing from 1e-12 of its largest
+/// diagonal element), so the step in the undetermined direction is small and the
+/// free energies keep their start there. The covariance then reports that
+/// direction's huge variance.
 fn reduced_hessian(
     p: &Pass,
     k: usize,
@@ -428,16 +551,35 @@ fn reduced_hessian(
         let d = if a == b { p.colsum[a] } else { 0.0 };
         d - gram[a * k + b]
     });
-    nalgebra::Cholesky::new(h).ok_or_else(|| {
-        EstimateError::NotConverged(
-            "MBAR: the Hessian is singular (some states share no samples' weight: they do not overlap)".into(),
-        )
-    })
+    if let Some(c) = nalgebra::Cholesky::new(h.clone()) {
+        return Ok(c);
+    }
+    let top = h.diagonal().amax().max(1.0);
+    let mut mu = 1e-12 * top;
+    while mu <= top {
+        let damped = &h + DMatrix::<f64>::identity(k - 1, k - 1) * mu;
+        if let Some(c) = nalgebra::Cholesky::new(damped) {
+            return Ok(c);
+        }
+        mu *= 100.0;
+    }
+    Err(EstimateError::NotConverged(
+        "MBAR: the Hessian is not positive definite even when damped (the samples' weights are not finite)".into(),
+    ))
 }
 
 /// Θ = Wᵀ (I − W N Wᵀ)⁺ W (Shirts & Chodera 2008, Eq. D6), evaluated through the
-/// K × K Gram matrix G = WᵀW = V Σ² Vᵀ: Θ = V Σ (I − Σ Vᵀ N V Σ)⁺ Σ Vᵀ, the
-/// pseudo-inverse taking care of the rank deficiency (F is blind to a common shift).
+/// K × K Gram matrix G = WᵀW = V Σ² Vᵀ: Θ = V Σ M⁺ Σ Vᵀ with M = I − Σ Vᵀ N V Σ.
+///
+/// M has exactly one null direction that the estimator cannot see (a common shift
+/// of every f): y₀ = Σ Vᵀ n with n the sample counts, since W n = 1 and Wᵀ 1 = 1
+/// at the solution. The pseudo-inverse removes that direction and only that one,
+/// M⁺ = (M + ŷ₀ŷ₀ᵀ)⁻¹ − ŷ₀ŷ₀ᵀ, so a direction that the samples determine weakly
+/// (states that barely overlap: a tiny eigenvalue of M) keeps its large variance
+/// instead of being cut away with a relative eigenvalue threshold. An eigenvalue
+/// that is zero to rounding (states that share no weight at all) is floored at
+/// [`NULL_EIGENVALUE`], which leaves a variance of order 1/ε: no error bar, a
+/// signal that the leg cannot be estimated.
 fn covariance(g: &DMatrix<f64>, counts: &[f64]) -> Vec<f64> {
     let k = g.nrows();
     let eig = SymmetricEigen::new(g.clone());
@@ -446,20 +588,32 @@ fn covariance(g: &DMatrix<f64>, counts: &[f64]) -> Vec<f64> {
     let s = DMatrix::from_diagonal(&sigma);
     let n = DMatrix::from_diagonal(&DVector::from_column_slice(counts));
     let a = &s * v.transpose() * &n * &v * &s;
-    let m = DMatrix::<f64>::identity(k, k) - a;
+    let mut y0 = &s * v.transpose() * DVector::from_column_slice(counts);
+    let norm = y0.norm();
+    let null = if norm > 0.0 && norm.is_finite() {
+        y0 /= norm;
+        &y0 * y0.transpose()
+    } else {
+        DMatrix::zeros(k, k)
+    };
+    let m = DMatrix::<f64>::identity(k, k) - a + &null;
     let me = SymmetricEigen::new(m);
-    let biggest = me.eigenvalues.iter().fold(0.0f64, |x, l| x.max(l.abs()));
-    let cut = biggest * 1e-10;
     let inv_diag = DVector::from_iterator(
         k,
         me.eigenvalues
             .iter()
-            .map(|&l| if l.abs() > cut { 1.0 / l } else { 0.0 }),
+            .map(|&l| 1.0 / l.abs().max(NULL_EIGENVALUE)),
     );
-    let pinv = &me.eigenvectors * DMatrix::from_diagonal(&inv_diag) * me.eigenvectors.transpose();
+    let pinv =
+        &me.eigenvectors * DMatrix::from_diagonal(&inv_diag) * me.eigenvectors.transpose() - null;
     let theta = &v * &s * pinv * &s * v.transpose();
     (0..k * k).map(|i| theta[(i / k, i % k)]).collect()
 }
+
+/// The smallest eigenvalue of the deflated M in [`covariance`] taken as nonzero: M's
+/// entries are O(1) and computed to about 1e-16 each, so an eigenvalue below this
+/// is not resolved from zero.
+const NULL_EIGENVALUE: f64 = 1e-13;
 
 #[cfg(test)]
 mod tests {

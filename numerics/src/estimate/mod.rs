@@ -2,6 +2,7 @@
 //! decorrelation. Pure numerics: slices and samples in, values out, no I/O.
 
 pub mod bar;
+mod checks;
 pub mod correlation;
 mod error;
 pub mod exp;
@@ -13,6 +14,7 @@ mod mbar_avx2;
 pub mod options;
 mod result;
 pub mod ti;
+mod warning;
 
 pub use error::EstimateError;
 pub use leg::{dudl_series, energy_series, estimate_leg};
@@ -21,3 +23,4 @@ pub use result::{
     Convergence, ConvergencePoint, DeltaG, LegEstimate, MbarDetails, PairEstimate, TiPoint,
     WindowDiagnostics,
 };
+pub use warning::{LegWarning, Series, DISAGREE_SIGMAS};

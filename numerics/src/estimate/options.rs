@@ -177,6 +177,15 @@ pub struct EstimateOptions {
     pub min_uncorrelated: usize,
     /// An adjacent overlap below this draws a warning (0.03: common practice, no source).
     pub min_overlap: f64,
+    /// An adjacent overlap below this marks MBAR, BAR and EXP unreliable: their
+    /// asymptotic error bars no longer describe the error (1e-3: our choice, set
+    /// where the poor-overlap calibration in tests/it/estimate_calibration.rs shows
+    /// reported σ falling behind the error; no published source).
+    pub unreliable_overlap: f64,
+    /// A window or leg whose first and last parts differ by more than this many
+    /// combined standard errors draws a drift warning (3: common practice, no
+    /// source; a two-sided normal tail of 0.27 % per comparison).
+    pub drift_sigmas: f64,
 }
 
 impl Default for EstimateOptions {
@@ -188,6 +197,8 @@ impl Default for EstimateOptions {
             convergence: true,
             min_uncorrelated: 50,
             min_overlap: 0.03,
+            unreliable_overlap: 1e-3,
+            drift_sigmas: 3.0,
         }
     }
 }

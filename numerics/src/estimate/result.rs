@@ -2,6 +2,7 @@
 //! method says otherwise; convert with [`DeltaG::in_unit`].
 
 use super::options::Method;
+use super::warning::LegWarning;
 use crate::units::EnergyUnit;
 use serde::{Deserialize, Serialize};
 use std::collections::BTreeMap;
@@ -108,6 +109,10 @@ pub struct MbarDetails {
     pub covariance: Vec<Vec<f64>>,
     /// Newton iterations.
     pub iterations: usize,
+    /// Passes over the samples in the solve (a machine-independent measure of its
+    /// cost).
+    #[serde(default)]
+    pub passes: usize,
     /// Wall time of the solve (BAR start, Newton, covariance, overlap), seconds.
     pub solve_seconds: f64,
 }
@@ -138,12 +143,26 @@ pub struct LegEstimate {
     pub pairs: Vec<PairEstimate>,
     /// Forward/reverse convergence, when asked for.
     pub convergence: Option<Convergence>,
-    /// Warnings: which window or pair, what is wrong, what to do.
+    /// Warnings worded in kT: which window or pair, what is wrong, what to do (the
+    /// messages of `warning_details`, one per problem).
     pub warnings: Vec<String>,
+    /// The same warnings as data, to word in another unit
+    /// ([`LegWarning::message`]) or to pick out by window.
+    #[serde(default)]
+    pub warning_details: Vec<LegWarning>,
+    /// Estimators whose value or error bar cannot be trusted, with the reason (too
+    /// little overlap for the asymptotic error bar, a window of identical
+    /// frames…). Weighting such an estimate by 1/σ² would be wrong.
+    #[serde(default, skip_serializing_if = "BTreeMap::is_empty")]
+    pub unreliable: BTreeMap<Method, String>,
 }
 
 impl LegEstimate {
     /// MBAR's G(j) − G(i) (kT) and its standard error from the covariance.
+    ///
+    /// # Panics
+    ///
+    /// When `i` or `j` is not a state.
     pub fn mbar_difference(&self, i: usize, j: usize) -> Option<DeltaG> {
         let m = self.mbar.as_ref()?;
         let c = &m.covariance;
@@ -152,6 +171,20 @@ impl LegEstimate {
             delta_g: m.f[j] - m.f[i],
             sigma: var.max(0.0).sqrt(),
         })
+    }
+
+    /// Whether `method`'s estimate and error bar can be used as they are (false
+    /// when it is in [`LegEstimate::unreliable`]).
+    pub fn is_reliable(&self, method: Method) -> bool {
+        !self.unreliable.contains_key(&method)
+    }
+
+    /// The warnings worded with energies in `unit`.
+    pub fn warnings_in(&self, unit: EnergyUnit) -> Vec<String> {
+        self.warning_details
+            .iter()
+            .map(|w| w.message(unit, self.temperature_k))
+            .collect()
     }
 
     /// ΔG ± σ of `method` in `unit`.

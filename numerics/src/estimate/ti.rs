@@ -5,6 +5,13 @@
 
 /// Integration weights of the trapezoid rule on the nodes `x` (any order; zero-length
 /// steps contribute nothing).
+///
+/// # Examples
+///
+/// ```
+/// use legwork_numerics::estimate::ti::trapezoid_weights;
+/// assert_eq!(trapezoid_weights(&[0.0, 0.5, 1.0]), vec![0.25, 0.5, 0.25]);
+/// ```
 pub fn trapezoid_weights(x: &[f64]) -> Vec<f64> {
     let mut c = vec![0.0; x.len()];
     for i in 0..x.len().saturating_sub(1) {
@@ -18,6 +25,18 @@ pub fn trapezoid_weights(x: &[f64]) -> Vec<f64> {
 /// Integration weights of the natural cubic spline (second derivative zero at both
 /// ends) through nodes `x`, which must be strictly monotone. Two nodes give the
 /// trapezoid rule; one gives zero.
+///
+/// # Examples
+///
+/// The rule integrates a straight line exactly:
+///
+/// ```
+/// use legwork_numerics::estimate::ti::natural_spline_weights;
+/// let x = [0.0, 0.2, 0.5, 1.0];
+/// let w = natural_spline_weights(&x);
+/// let integral: f64 = w.iter().zip(&x).map(|(w, x)| w * (3.0 * x + 1.0)).sum();
+/// assert!((integral - 2.5).abs() < 1e-12);
+/// ```
 pub fn natural_spline_weights(x: &[f64]) -> Vec<f64> {
     let n = x.len();
     if n < 3 {
@@ -66,6 +85,14 @@ fn natural_spline_integral(x: &[f64], y: &[f64]) -> f64 {
 }
 
 /// Applies integration weights: (Σ c_i y_i, sqrt(Σ c_i² s_i²)).
+///
+/// # Examples
+///
+/// ```
+/// use legwork_numerics::estimate::ti::integrate;
+/// let (v, s) = integrate(&[0.5, 0.5], &[1.0, 3.0], &[0.3, 0.4]);
+/// assert!((v - 2.0).abs() < 1e-12 && (s - 0.25).abs() < 1e-12);
+/// ```
 pub fn integrate(c: &[f64], y: &[f64], sem: &[f64]) -> (f64, f64) {
     let v = c.iter().zip(y).map(|(c, y)| c * y).sum();
     let s2: f64 = c.iter().zip(sem).map(|(c, s)| c * c * s * s).sum();
@@ -76,6 +103,15 @@ pub fn integrate(c: &[f64], y: &[f64], sem: &[f64]) -> (f64, f64) {
 /// every state, in state order): the path is cut into runs of strictly changing λ
 /// (a component held fixed over some states contributes nothing there), and each
 /// run is integrated with `rule`.
+///
+/// # Examples
+///
+/// A component that moves over the first two states and is then held:
+///
+/// ```
+/// use legwork_numerics::estimate::ti::path_weights;
+/// assert_eq!(path_weights(&[0.0, 1.0, 1.0], false), vec![0.5, 0.5, 0.0]);
+/// ```
 pub fn path_weights(x: &[f64], spline: bool) -> Vec<f64> {
     let n = x.len();
     let mut c = vec![0.0; n];

@@ -38,7 +38,14 @@ pub struct Measured {
     pub line: u64,
 }
 
-/// ΔG = RT ln(K / 1 M) in kJ/mol for a constant K given in mol/L.
+/// ΔG = RT ln(K / 1 M) in kJ/mol for a constant K given in mol/L (R from
+/// CODATA 2018). Not finite for K ≤ 0; callers check K first.
+///
+/// ```
+/// use legwork_numerics::network::dg_from_constant_kj;
+/// // 1 nM at 298.15 K: RT ln(1e-9) = 2.478957 × (−20.723266) = −51.372086 kJ/mol.
+/// assert!((dg_from_constant_kj(1e-9, 298.15) - (-51.372_086)).abs() < 1e-5);
+/// ```
 pub fn dg_from_constant_kj(k_molar: f64, temperature_k: f64) -> f64 {
     GAS_CONSTANT_KJ * temperature_k * k_molar.ln()
 }

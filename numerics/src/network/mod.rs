@@ -8,7 +8,7 @@ mod topology;
 
 pub use experiment::{dg_from_constant_kj, molar_factor, Measured, MeasuredKind};
 pub use solve::{
-    annotate_edges, solve, EdgeFit, LigandEstimate, NetworkEdge, NetworkError, NetworkResult,
-    Offset,
+    annotate_edges, solve, Anchor, EdgeFit, LigandEstimate, NetworkEdge, NetworkError,
+    NetworkResult, Offset,
 };
 pub use topology::{CycleClosure, Hysteresis};

@@ -49,21 +49,38 @@ pub enum Offset {
     SeriesMean,
 }
 
+/// Why a ligand's σ is zero by construction: its ΔG is what fixes its
+/// connected part's free constant.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Anchor {
+    /// The only measured ligand of its part: its ΔG equals its measurement, so
+    /// it cannot be scored against it.
+    Measured,
+    /// The reference ligand (ΔG = 0).
+    Reference,
+}
+
 /// Per-ligand result of the network.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct LigandEstimate {
     /// Ligand id.
     pub ligand: String,
-    /// ΔG, in the campaign unit (absolute only up to the component's [`Offset`]).
+    /// ΔG, in the unit of the edges (absolute only up to the component's [`Offset`]).
     pub dg: f64,
-    /// Standard error from the covariance diagonal.
+    /// Standard error from the covariance diagonal: relative to the anchor when
+    /// the part has one, and 0 for the anchor itself (see `anchor`).
     pub sigma: f64,
-    /// Measured ΔG in the campaign unit, when there is one.
+    /// Measured ΔG in the unit of the edges, when there is one.
     #[serde(default)]
     pub measured: Option<f64>,
     /// Connected component (0 for a connected network).
     #[serde(default)]
     pub component: usize,
+    /// Set when this ligand's ΔG fixes its part's offset, so its σ of 0 is a
+    /// definition, not a precision: show it as the reference, not as ± 0.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub anchor: Option<Anchor>,
 }
 
 /// One edge after the fit.
@@ -139,22 +156,121 @@ pub enum NetworkError {
     UnknownReference(String),
 }
 
+/// An edge as indices into the ligand list: (a, b, ΔΔG, weight 1/σ²).
+type IndexedEdge = (usize, usize, f64, f64);
+
 /// Solves for per-ligand ΔG by weighted least squares.
 ///
 /// Minimises Σₑ (G(bₑ) − G(aₑ) − ΔΔGₑ)² / σₑ², the maximum-likelihood estimate for
-/// independent Gaussian edge errors. Differences are fixed by the edges; the
+/// independent Gaussian edge errors. Every edge is its own observation (an edge
+/// run both ways contributes both runs). Differences are fixed by the edges; the
 /// additive constant of each connected component is set by, in order of
 /// preference: the mean of the component's measured values (`measured`, in the
-/// campaign unit), the `reference` ligand at ΔG = 0, or a zero series mean.
+/// unit of the edges), the `reference` ligand at ΔG = 0, or a zero series mean.
 /// The covariance is the inverse of the normal matrix with one ligand per
 /// component held fixed, then carried through the offset: for an offset
 /// G′ = (I − 1cᵀ) G + const, Cov′ = (I − 1cᵀ) Cov (I − 1cᵀ)ᵀ. Measured values
-/// enter only through that constant; their own errors are not propagated.
+/// enter only through that constant; their own errors are not propagated. A
+/// ligand that alone fixes the constant (the one measured ligand of its part,
+/// or the reference) has σ = 0 by construction and is marked with its
+/// [`Anchor`]; the others' σ are then relative to it.
+///
+/// # Errors
+///
+/// [`NetworkError::Empty`] without edges, [`NetworkError::SelfLoop`] for an edge
+/// from a ligand to itself, [`NetworkError::BadSigma`] for a σ that is not
+/// finite and positive (or a non-finite ΔΔG), [`NetworkError::UnknownReference`]
+/// when `reference` is on no edge.
+///
+/// ```
+/// use legwork_numerics::network::{solve, NetworkEdge};
+/// let e = |a: &str, b: &str, ddg| NetworkEdge { a: a.into(), b: b.into(), ddg, sigma: 0.1 };
+/// // A closed triangle: the fit spreads the 0.3 closure error over its edges.
+/// let fit = solve(&[e("x", "y", 1.0), e("y", "z", 1.0), e("x", "z", 2.3)], &[], Some("x"))?;
+/// let g: Vec<f64> = fit.ligands.iter().map(|l| l.dg).collect();
+/// assert!((g[1] - 1.1).abs() < 1e-12 && (g[2] - 2.2).abs() < 1e-12);
+/// assert_eq!(fit.dof, 1);
+/// # Ok::<(), legwork_numerics::network::NetworkError>(())
+/// ```
 pub fn solve(
     edges: &[NetworkEdge],
     measured: &[Measured],
     reference: Option<&str>,
 ) -> Result<NetworkResult, NetworkError> {
+    let (names, index) = index_ligands(edges)?;
+    if let Some(r) = reference {
+        if !index.contains_key(r) {
+            return Err(NetworkError::UnknownReference(r.to_string()));
+        }
+    }
+    let n = names.len();
+    let edge_idx: Vec<IndexedEdge> = edges
+        .iter()
+        .map(|e| {
+            (
+                index[e.a.as_str()],
+                index[e.b.as_str()],
+                e.ddg,
+                1.0 / (e.sigma * e.sigma),
+            )
+        })
+        .collect();
+    let component = components(n, &edge_idx);
+    let n_comp = component.iter().copied().max().map_or(0, |m| m + 1);
+    let measured_of: BTreeMap<&str, f64> =
+        measured.iter().map(|m| (m.ligand.as_str(), m.dg)).collect();
+    let warnings = network_warnings(n_comp, measured, &index);
+
+    let mut g = DVector::<f64>::zeros(n);
+    let mut cov = DMatrix::<f64>::zeros(n, n);
+    let mut offsets = Vec::with_capacity(n_comp);
+    let mut anchors: Vec<Option<Anchor>> = vec![None; n];
+    for c in 0..n_comp {
+        let members: Vec<usize> = (0..n).filter(|&i| component[i] == c).collect();
+        let reference_here = reference.map(|r| index[r]).filter(|&i| component[i] == c);
+        let fit = solve_component(&members, &edge_idx, &names, &measured_of, reference_here);
+        for (k, &i) in members.iter().enumerate() {
+            g[i] = fit.g[k];
+            for (l, &j) in members.iter().enumerate() {
+                cov[(i, j)] = fit.cov[(k, l)];
+            }
+        }
+        if let Some((i, a)) = fit.anchor {
+            anchors[i] = Some(a);
+        }
+        offsets.push(fit.offset);
+    }
+
+    let (fits, chi2) = fit_edges(edges, &edge_idx, &g, &cov);
+    let ligands = (0..n)
+        .map(|i| LigandEstimate {
+            ligand: names[i].clone(),
+            dg: g[i],
+            sigma: cov[(i, i)].max(0.0).sqrt(),
+            measured: measured_of.get(names[i].as_str()).copied(),
+            component: component[i],
+            anchor: anchors[i],
+        })
+        .collect();
+    Ok(NetworkResult {
+        ligands,
+        covariance: (0..n)
+            .map(|i| (0..n).map(|j| cov[(i, j)]).collect())
+            .collect(),
+        offsets,
+        cycles: cycle_basis(edges, &names, &index),
+        hysteresis: hysteresis(edges, &names, &index),
+        edges: fits,
+        chi2,
+        dof: edges.len() + n_comp - n,
+        warnings,
+    })
+}
+
+/// Checks every edge and numbers the ligands in order of first appearance.
+fn index_ligands(
+    edges: &[NetworkEdge],
+) -> Result<(Vec<String>, BTreeMap<&str, usize>), NetworkError> {
     if edges.is_empty() {
         return Err(NetworkError::Empty);
     }
@@ -181,30 +297,16 @@ pub fn solve(
             }
         }
     }
-    if let Some(r) = reference {
-        if !index.contains_key(r) {
-            return Err(NetworkError::UnknownReference(r.to_string()));
-        }
-    }
-    let n = names.len();
-    let edge_idx: Vec<(usize, usize, f64, f64)> = edges
-        .iter()
-        .map(|e| {
-            (
-                index[e.a.as_str()],
-                index[e.b.as_str()],
-                e.ddg,
-                1.0 / (e.sigma * e.sigma),
-            )
-        })
-        .collect();
+    Ok((names, index))
+}
 
-    let component = components(n, &edge_idx);
-    let n_comp = component.iter().copied().max().map_or(0, |m| m + 1);
-    let mut measured_of: BTreeMap<&str, f64> = BTreeMap::new();
-    for m in measured {
-        measured_of.insert(m.ligand.as_str(), m.dg);
-    }
+/// Warnings about the network as a whole: disconnected parts, measured ligands
+/// on no edge.
+fn network_warnings(
+    n_comp: usize,
+    measured: &[Measured],
+    index: &BTreeMap<&str, usize>,
+) -> Vec<String> {
     let mut warnings = Vec::new();
     if n_comp > 1 {
         warnings.push(format!(
@@ -222,84 +324,100 @@ pub fn solve(
             unmatched.join(", ")
         ));
     }
+    warnings
+}
 
-    let mut g = DVector::<f64>::zeros(n);
-    let mut cov = DMatrix::<f64>::zeros(n, n);
-    let mut offsets = Vec::with_capacity(n_comp);
-    for c in 0..n_comp {
-        let members: Vec<usize> = (0..n).filter(|&i| component[i] == c).collect();
-        let local: BTreeMap<usize, usize> =
-            members.iter().enumerate().map(|(k, &i)| (i, k)).collect();
-        let m = members.len();
-        // Normal equations Lg = r of the weighted design (L: weighted graph Laplacian).
-        let mut lap = DMatrix::<f64>::zeros(m, m);
-        let mut rhs = DVector::<f64>::zeros(m);
-        for &(a, b, d, w) in edge_idx.iter().filter(|e| component[e.0] == c) {
-            let (a, b) = (local[&a], local[&b]);
-            lap[(a, a)] += w;
-            lap[(b, b)] += w;
-            lap[(a, b)] -= w;
-            lap[(b, a)] -= w;
-            rhs[a] -= w * d;
-            rhs[b] += w * d;
-        }
-        // Hold the first member at 0; the reduced Laplacian of a connected graph is
-        // positive definite, so Cholesky applies.
-        let red = lap.view((1, 1), (m - 1, m - 1)).into_owned();
-        let red_inv = red
-            .cholesky()
-            .expect("reduced Laplacian of a connected component is positive definite")
-            .inverse();
-        let x = &red_inv * rhs.rows(1, m - 1);
-        let mut g0 = DVector::<f64>::zeros(m);
-        g0.rows_mut(1, m - 1).copy_from(&x);
-        let mut c0 = DMatrix::<f64>::zeros(m, m);
-        c0.view_mut((1, 1), (m - 1, m - 1)).copy_from(&red_inv);
+/// One connected component solved: ΔG and covariance of its members (in the
+/// order given), how its offset was fixed, and its anchor (global index).
+struct ComponentFit {
+    g: DVector<f64>,
+    cov: DMatrix<f64>,
+    offset: Offset,
+    anchor: Option<(usize, Anchor)>,
+}
 
-        let meas: Vec<(usize, f64)> = members
-            .iter()
-            .enumerate()
-            .filter_map(|(k, &i)| measured_of.get(names[i].as_str()).map(|&v| (k, v)))
-            .collect();
-        let mut weights = DVector::<f64>::zeros(m);
-        let target;
-        let reference_here = reference.and_then(|r| {
-            let i = index[r];
-            (component[i] == c).then(|| local[&i])
-        });
-        if !meas.is_empty() {
-            for &(k, _) in &meas {
-                weights[k] = 1.0 / meas.len() as f64;
-            }
-            target = meas.iter().map(|m| m.1).sum::<f64>() / meas.len() as f64;
-            offsets.push(Offset::Measured { count: meas.len() });
-        } else if let Some(k) = reference_here {
-            weights[k] = 1.0;
-            target = 0.0;
-            offsets.push(Offset::Reference {
-                ligand: names[members[k]].clone(),
-            });
-        } else {
-            weights.fill(1.0 / m as f64);
-            target = 0.0;
-            offsets.push(Offset::SeriesMean);
-        }
-        let shift = target - weights.dot(&g0);
-        let p = DMatrix::<f64>::identity(m, m)
-            - DMatrix::<f64>::from_element(m, 1, 1.0) * weights.transpose();
-        let cp = &p * c0 * p.transpose();
-        for (k, &i) in members.iter().enumerate() {
-            g[i] = g0[k] + shift;
-            for (l, &j) in members.iter().enumerate() {
-                cov[(i, j)] = cp[(k, l)];
-            }
-        }
+/// Solves the normal equations of one connected component and fixes its offset.
+fn solve_component(
+    members: &[usize],
+    edge_idx: &[IndexedEdge],
+    names: &[String],
+    measured_of: &BTreeMap<&str, f64>,
+    reference: Option<usize>,
+) -> ComponentFit {
+    let local: BTreeMap<usize, usize> = members.iter().enumerate().map(|(k, &i)| (i, k)).collect();
+    let m = members.len();
+    // Normal equations Lg = r of the weighted design (L: weighted graph Laplacian).
+    let mut lap = DMatrix::<f64>::zeros(m, m);
+    let mut rhs = DVector::<f64>::zeros(m);
+    for &(a, b, d, w) in edge_idx.iter().filter(|e| local.contains_key(&e.0)) {
+        let (a, b) = (local[&a], local[&b]);
+        lap[(a, a)] += w;
+        lap[(b, b)] += w;
+        lap[(a, b)] -= w;
+        lap[(b, a)] -= w;
+        rhs[a] -= w * d;
+        rhs[b] += w * d;
     }
+    // Hold the first member at 0; the reduced Laplacian of a connected graph is
+    // positive definite, so Cholesky applies.
+    let red = lap.view((1, 1), (m - 1, m - 1)).into_owned();
+    let red_inv = red
+        .cholesky()
+        .expect("reduced Laplacian of a connected component is positive definite")
+        .inverse();
+    let x = &red_inv * rhs.rows(1, m - 1);
+    let mut g0 = DVector::<f64>::zeros(m);
+    g0.rows_mut(1, m - 1).copy_from(&x);
+    let mut c0 = DMatrix::<f64>::zeros(m, m);
+    c0.view_mut((1, 1), (m - 1, m - 1)).copy_from(&red_inv);
 
-    let mut chi2 = 0.0;
-    let fits: Vec<EdgeFit> = edges
+    let meas: Vec<(usize, f64)> = members
         .iter()
-        .zip(&edge_idx)
+        .enumerate()
+        .filter_map(|(k, &i)| measured_of.get(names[i].as_str()).map(|&v| (k, v)))
+        .collect();
+    let mut weights = DVector::<f64>::zeros(m);
+    let (target, offset, anchor) = if !meas.is_empty() {
+        for &(k, _) in &meas {
+            weights[k] = 1.0 / meas.len() as f64;
+        }
+        let anchor = (meas.len() == 1).then(|| (members[meas[0].0], Anchor::Measured));
+        let target = meas.iter().map(|m| m.1).sum::<f64>() / meas.len() as f64;
+        (target, Offset::Measured { count: meas.len() }, anchor)
+    } else if let Some(i) = reference {
+        weights[local[&i]] = 1.0;
+        let offset = Offset::Reference {
+            ligand: names[i].clone(),
+        };
+        (0.0, offset, Some((i, Anchor::Reference)))
+    } else {
+        weights.fill(1.0 / m as f64);
+        (0.0, Offset::SeriesMean, None)
+    };
+    let shift = target - weights.dot(&g0);
+    let p = DMatrix::<f64>::identity(m, m)
+        - DMatrix::<f64>::from_element(m, 1, 1.0) * weights.transpose();
+    let mut g = g0;
+    g.add_scalar_mut(shift);
+    ComponentFit {
+        g,
+        cov: &p * c0 * p.transpose(),
+        offset,
+        anchor,
+    }
+}
+
+/// Each edge against the fit, and the weighted sum of squared residuals.
+fn fit_edges(
+    edges: &[NetworkEdge],
+    edge_idx: &[IndexedEdge],
+    g: &DVector<f64>,
+    cov: &DMatrix<f64>,
+) -> (Vec<EdgeFit>, f64) {
+    let mut chi2 = 0.0;
+    let fits = edges
+        .iter()
+        .zip(edge_idx)
         .map(|(e, &(a, b, _, w))| {
             let fitted = g[b] - g[a];
             let residual = e.ddg - fitted;
@@ -317,32 +435,11 @@ pub fn solve(
             }
         })
         .collect();
-    let ligands = (0..n)
-        .map(|i| LigandEstimate {
-            ligand: names[i].clone(),
-            dg: g[i],
-            sigma: cov[(i, i)].max(0.0).sqrt(),
-            measured: measured_of.get(names[i].as_str()).copied(),
-            component: component[i],
-        })
-        .collect();
-    Ok(NetworkResult {
-        ligands,
-        covariance: (0..n)
-            .map(|i| (0..n).map(|j| cov[(i, j)]).collect())
-            .collect(),
-        offsets,
-        cycles: cycle_basis(edges, &names, &index),
-        hysteresis: hysteresis(edges, &names, &index),
-        edges: fits,
-        chi2,
-        dof: edges.len() + n_comp - n,
-        warnings,
-    })
+    (fits, chi2)
 }
 
 /// Connected component of every ligand, numbered in order of first appearance.
-fn components(n: usize, edges: &[(usize, usize, f64, f64)]) -> Vec<usize> {
+fn components(n: usize, edges: &[IndexedEdge]) -> Vec<usize> {
     let mut parent: Vec<usize> = (0..n).collect();
     fn find(p: &mut [usize], mut x: usize) -> usize {
         while p[x] != x {
@@ -370,6 +467,25 @@ fn components(n: usize, edges: &[(usize, usize, f64, f64)]) -> Vec<usize> {
 /// Copies the network's fit onto the edge results (fitted value, residual) and
 /// adds the residual, closure and hysteresis flags. Edges are matched by their
 /// ligand pair; `edges` and `fit` normally come from the same list in the same order.
+///
+/// ```
+/// use legwork_numerics::cycle::{combine_edge, EdgeFlag, LegSpec, LegValue, Subject};
+/// use legwork_numerics::network::{annotate_edges, solve, NetworkEdge};
+/// use legwork_numerics::units::EnergyUnit;
+/// let leg = [LegSpec { name: "l".into(), sign: 1.0, correction: 0.0, restraint: None }];
+/// let close = |a: &str, b: &str, dg| {
+///     let v = [LegValue { leg: "l".into(), replica: 1, dg, sigma: 0.1 }];
+///     let s = Subject::Edge { a: a.into(), b: b.into() };
+///     combine_edge(&s, &leg, &v, 298.15, EnergyUnit::KcalPerMol)
+/// };
+/// // A triangle that misses closure by 1.0 (10σ).
+/// let mut edges = vec![close("x", "y", 1.0)?, close("y", "z", 1.0)?, close("x", "z", 3.0)?];
+/// let net: Vec<NetworkEdge> = edges.iter().map(NetworkEdge::from).collect();
+/// let fit = solve(&net, &[], None)?;
+/// annotate_edges(&mut edges, &fit);
+/// assert!(edges.iter().all(|e| e.residual.is_some() && e.flags.contains(&EdgeFlag::Closure)));
+/// # Ok::<(), Box<dyn std::error::Error>>(())
+/// ```
 pub fn annotate_edges(edges: &mut [EdgeResult], fit: &NetworkResult) {
     for (i, e) in edges.iter_mut().enumerate() {
         let Some(b) = e.ligand_b.as_deref() else {

@@ -2,11 +2,12 @@
 //! seeded bootstrap 95% interval.
 
 use super::experiment::Measured;
-use super::solve::NetworkResult;
+use super::solve::{Anchor, LigandEstimate, NetworkResult};
 use crate::cycle::EdgeResult;
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 use serde::{Deserialize, Serialize};
+use std::collections::BTreeMap;
 
 /// How many bootstrap resamples [`compare`] draws.
 pub const BOOTSTRAP_RESAMPLES: usize = 2000;
@@ -45,7 +46,14 @@ pub struct Stats {
     pub resamples: usize,
 }
 
-/// Root-mean-square of pred − meas (`None` when empty).
+/// Root-mean-square of pred − meas (`None` when empty; extra values of the
+/// longer slice are ignored).
+///
+/// ```
+/// use legwork_numerics::network::stats::rmse;
+/// assert_eq!(rmse(&[1.0, 3.0], &[2.0, 2.0]), Some(1.0));
+/// assert_eq!(rmse(&[], &[]), None);
+/// ```
 pub fn rmse(pred: &[f64], meas: &[f64]) -> Option<f64> {
     (!pred.is_empty()).then(|| {
         (pred
@@ -58,7 +66,13 @@ pub fn rmse(pred: &[f64], meas: &[f64]) -> Option<f64> {
     })
 }
 
-/// Mean of |pred − meas| (`None` when empty).
+/// Mean of |pred − meas| (`None` when empty; extra values of the longer slice
+/// are ignored).
+///
+/// ```
+/// use legwork_numerics::network::stats::mue;
+/// assert_eq!(mue(&[1.0, 4.0], &[2.0, 2.0]), Some(1.5));
+/// ```
 pub fn mue(pred: &[f64], meas: &[f64]) -> Option<f64> {
     (!pred.is_empty()).then(|| {
         pred.iter()
@@ -70,6 +84,12 @@ pub fn mue(pred: &[f64], meas: &[f64]) -> Option<f64> {
 }
 
 /// Pearson's r; `None` for fewer than 2 pairs or no spread in either.
+///
+/// ```
+/// use legwork_numerics::network::stats::pearson;
+/// assert_eq!(pearson(&[1.0, 2.0, 3.0], &[2.0, 4.0, 6.0]), Some(1.0));
+/// assert_eq!(pearson(&[1.0, 2.0, 3.0], &[5.0, 5.0, 5.0]), None);
+/// ```
 pub fn pearson(x: &[f64], y: &[f64]) -> Option<f64> {
     let n = x.len();
     if n < 2 {
@@ -89,6 +109,13 @@ pub fn pearson(x: &[f64], y: &[f64]) -> Option<f64> {
 /// Kendall's τ_b: (concordant − discordant) / √((n₀ − n₁)(n₀ − n₂)), with n₀ the
 /// number of pairs and n₁, n₂ the pairs tied in x and in y. O(n²), fine for the
 /// series sizes legwork sees. `None` when either variable is constant.
+///
+/// ```
+/// use legwork_numerics::network::stats::kendall_tau;
+/// // 3 pairs: (1,2) concordant, (1,3) concordant, (2,3) discordant → (2 − 1)/3.
+/// let t = kendall_tau(&[1.0, 2.0, 3.0], &[1.0, 3.0, 2.0]).unwrap();
+/// assert!((t - 1.0 / 3.0).abs() < 1e-12);
+/// ```
 pub fn kendall_tau(x: &[f64], y: &[f64]) -> Option<f64> {
     let n = x.len();
     let (mut s, mut tx, mut ty, mut n0) = (0i64, 0i64, 0i64, 0i64);
@@ -113,6 +140,18 @@ pub fn kendall_tau(x: &[f64], y: &[f64]) -> Option<f64> {
 }
 
 /// Compares predictions with measurements ([`BOOTSTRAP_RESAMPLES`] resamples).
+///
+/// # Panics
+///
+/// When `pred` and `meas` differ in length.
+///
+/// ```
+/// use legwork_numerics::network::stats::compare;
+/// let s = compare(&[-8.0, -9.2, -7.1], &[-8.4, -9.0, -7.5], 1);
+/// assert_eq!(s.n, 3);
+/// let rmse = s.rmse.unwrap();
+/// assert!(rmse.low <= rmse.value && rmse.value <= rmse.high);
+/// ```
 pub fn compare(pred: &[f64], meas: &[f64], seed: u64) -> Stats {
     compare_with(pred, meas, seed, BOOTSTRAP_RESAMPLES)
 }
@@ -120,6 +159,18 @@ pub fn compare(pred: &[f64], meas: &[f64], seed: u64) -> Stats {
 /// Compares with a chosen number of bootstrap resamples. Pairs are resampled
 /// together; a resample where a statistic is undefined (e.g. all values equal)
 /// is left out of that statistic's interval.
+///
+/// # Panics
+///
+/// When `pred` and `meas` differ in length.
+///
+/// ```
+/// use legwork_numerics::network::stats::compare_with;
+/// let a = compare_with(&[1.0, 2.0, 3.5], &[1.1, 2.3, 3.0], 42, 200);
+/// let b = compare_with(&[1.0, 2.0, 3.5], &[1.1, 2.3, 3.0], 42, 200);
+/// assert_eq!(a, b); // seeded
+/// assert_eq!(a.resamples, 200);
+/// ```
 pub fn compare_with(pred: &[f64], meas: &[f64], seed: u64, resamples: usize) -> Stats {
     assert_eq!(pred.len(), meas.len(), "pred and meas must pair up");
     let n = pred.len();
@@ -184,15 +235,155 @@ fn quantile(sorted: &[f64], q: f64) -> Option<f64> {
 /// Per-ligand and per-edge comparison with experiment.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct Comparison {
-    /// Network ΔG against measured ΔG, over ligands with a measurement.
+    /// Network ΔG against measured ΔG, over measured ligands that are not
+    /// anchored (`ligands.n` says how many).
     pub ligands: Stats,
-    /// Each edge's own ΔΔG against measured ΔG(b) − ΔG(a), over edges with both ends measured.
+    /// Each edge's own ΔΔG against measured ΔG(b) − ΔG(a), over edges with both
+    /// ends measured (`edges.n` says how many).
     pub edges: Stats,
+    /// Measured ligands left out of `ligands` because their ΔG is fixed by their
+    /// own measurement (the only measured ligand of their connected part).
+    #[serde(default)]
+    pub anchored: Vec<String>,
 }
 
-/// Builds the per-ligand and per-edge comparison. `ligand_dg` pairs ligand ids
-/// with predicted ΔG (from the network, or from absolute cycles).
+/// Builds the per-ligand and per-edge comparison from the network's (or the
+/// absolute cycles') per-ligand estimates: ligands with an [`Anchor`] of kind
+/// [`Anchor::Measured`] are left out of the per-ligand statistics and listed in
+/// [`Comparison::anchored`]. Per-ligand statistics use seed `seed`, per-edge
+/// ones `seed + 1`.
+///
+/// # Panics
+///
+/// Never (the pairs are built here, so they always match up).
+///
+/// ```
+/// use legwork_numerics::network::stats::compare_estimates;
+/// use legwork_numerics::network::{solve, Measured, MeasuredKind, NetworkEdge};
+/// let e = |a: &str, b: &str, ddg| NetworkEdge { a: a.into(), b: b.into(), ddg, sigma: 0.2 };
+/// let m = |l: &str, dg| Measured {
+///     ligand: l.into(), dg, kind: MeasuredKind::Dg, value: dg, unit: "kcal/mol".into(), line: 2,
+/// };
+/// // Two parts: {x, y, z} with two measurements, {u, v} with one (u is anchored).
+/// let measured = [m("x", -8.0), m("y", -9.1), m("u", -7.0)];
+/// let fit = solve(&[e("x", "y", -1.0), e("y", "z", 0.5), e("u", "v", -0.4)], &measured, None)?;
+/// let c = compare_estimates(&fit.ligands, &[], &measured, 7);
+/// assert_eq!(c.ligands.n, 2);
+/// assert_eq!(c.anchored, ["u"]);
+/// # Ok::<(), legwork_numerics::network::NetworkError>(())
+/// ```
+pub fn compare_estimates(
+    ligands: &[LigandEstimate],
+    edges: &[EdgeResult],
+    measured: &[Measured],
+    seed: u64,
+) -> Comparison {
+    let anchored: Vec<String> = ligands
+        .iter()
+        .filter(|l| l.anchor == Some(Anchor::Measured))
+        .filter(|l| measured.iter().any(|m| m.ligand == l.ligand))
+        .map(|l| l.ligand.clone())
+        .collect();
+    let pairs: Vec<(String, f64)> = ligands
+        .iter()
+        .filter(|l| !anchored.contains(&l.ligand))
+        .map(|l| (l.ligand.clone(), l.dg))
+        .collect();
+    let mut c = compare_pairs(&pairs, edges, measured, seed);
+    c.anchored = anchored;
+    c
+}
+
+/// Builds the per-ligand and per-edge comparison from (ligand, predicted ΔG)
+/// pairs. Anchored ligands are found from `edges`: in a relative network, a
+/// connected part (over the edges with a second ligand) with exactly one
+/// measured ligand has that ligand's ΔG fixed to its measurement by the
+/// network's offset ([`crate::network::solve`]), so it is left out of the
+/// per-ligand statistics and listed in [`Comparison::anchored`]. Prefer
+/// [`compare_estimates`] when the [`LigandEstimate`]s are at hand: it uses the
+/// network's own anchors, which also hold when some edges were left out of the
+/// fit.
+///
+/// # Panics
+///
+/// Never.
+///
+/// ```
+/// use legwork_numerics::network::stats::compare_all;
+/// use legwork_numerics::network::{Measured, MeasuredKind};
+/// let m = |l: &str, dg| Measured {
+///     ligand: l.into(), dg, kind: MeasuredKind::Dg, value: dg, unit: "kcal/mol".into(), line: 2,
+/// };
+/// // Absolute cycles (no edges between ligands): nothing is anchored.
+/// let pred = [("x".to_string(), -8.2), ("y".to_string(), -9.0)];
+/// let c = compare_all(&pred, &[], &[m("x", -8.0), m("y", -9.5)], 1);
+/// assert_eq!(c.ligands.n, 2);
+/// assert!(c.anchored.is_empty());
+/// ```
 pub fn compare_all(
+    ligand_dg: &[(String, f64)],
+    edges: &[EdgeResult],
+    measured: &[Measured],
+    seed: u64,
+) -> Comparison {
+    let anchored = anchored_by_edges(edges, measured);
+    let pairs: Vec<(String, f64)> = ligand_dg
+        .iter()
+        .filter(|(id, _)| !anchored.contains(id))
+        .cloned()
+        .collect();
+    let mut c = compare_pairs(&pairs, edges, measured, seed);
+    c.anchored = anchored
+        .into_iter()
+        .filter(|a| ligand_dg.iter().any(|(id, _)| id == a))
+        .collect();
+    c
+}
+
+/// The measured ligands that are the only measured ligand of their connected
+/// part of the relative network formed by `edges`.
+fn anchored_by_edges<'a>(edges: &'a [EdgeResult], measured: &[Measured]) -> Vec<String> {
+    let mut part: BTreeMap<&'a str, usize> = BTreeMap::new();
+    let mut parent: Vec<usize> = Vec::new();
+    fn find(p: &mut [usize], mut x: usize) -> usize {
+        while p[x] != x {
+            p[x] = p[p[x]];
+            x = p[x];
+        }
+        x
+    }
+    for e in edges {
+        let Some(b) = e.ligand_b.as_deref() else {
+            continue;
+        };
+        let mut id = |l: &'a str| -> usize {
+            *part.entry(l).or_insert_with(|| {
+                parent.push(parent.len());
+                parent.len() - 1
+            })
+        };
+        let (x, y) = (id(e.ligand_a.as_str()), id(b));
+        let (rx, ry) = (find(&mut parent, x), find(&mut parent, y));
+        parent[rx.max(ry)] = rx.min(ry);
+    }
+    let mut count: BTreeMap<usize, Vec<&str>> = BTreeMap::new();
+    for m in measured {
+        if let Some(&i) = part.get(m.ligand.as_str()) {
+            count
+                .entry(find(&mut parent, i))
+                .or_default()
+                .push(m.ligand.as_str());
+        }
+    }
+    count
+        .into_values()
+        .filter(|v| v.len() == 1)
+        .map(|v| v[0].to_string())
+        .collect()
+}
+
+/// The comparison over the given pairs (no anchors).
+fn compare_pairs(
     ligand_dg: &[(String, f64)],
     edges: &[EdgeResult],
     measured: &[Measured],
@@ -213,11 +404,22 @@ pub fn compare_all(
     Comparison {
         ligands: compare(&lp, &lm, seed),
         edges: compare(&ep, &em, seed.wrapping_add(1)),
+        anchored: Vec::new(),
     }
 }
 
 impl NetworkResult {
     /// (ligand, ΔG) pairs, for [`compare_all`].
+    ///
+    /// ```
+    /// use legwork_numerics::network::{solve, NetworkEdge};
+    /// let e = NetworkEdge { a: "x".into(), b: "y".into(), ddg: 1.5, sigma: 0.2 };
+    /// let fit = solve(&[e], &[], Some("x"))?;
+    /// let g = fit.ligand_dg();
+    /// assert_eq!((g[0].0.as_str(), g[1].0.as_str()), ("x", "y"));
+    /// assert!(g[0].1 == 0.0 && (g[1].1 - 1.5).abs() < 1e-12);
+    /// # Ok::<(), legwork_numerics::network::NetworkError>(())
+    /// ```
     pub fn ligand_dg(&self) -> Vec<(String, f64)> {
         self.ligands
             .iter()

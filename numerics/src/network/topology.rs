@@ -2,7 +2,7 @@
 
 use super::solve::NetworkEdge;
 use serde::{Deserialize, Serialize};
-use std::collections::{BTreeMap, VecDeque};
+use std::collections::{BTreeMap, BTreeSet, VecDeque};
 
 /// Closure of one cycle of the basis: the sum of ΔΔG around it, which is zero
 /// for exact free energies because G is a state function.
@@ -121,7 +121,6 @@ pub(super) fn cycle_basis(
     names: &[String],
     index: &BTreeMap<&str, usize>,
 ) -> Vec<CycleClosure> {
-    let n = names.len();
     let merged: BTreeMap<(usize, usize), (f64, f64)> = pairs(edges, index)
         .into_iter()
         .map(|(k, runs)| {
@@ -138,15 +137,49 @@ pub(super) fn cycle_basis(
             (-x, s)
         }
     };
+    let forest = spanning_forest(names.len(), merged.keys().copied());
+    merged
+        .keys()
+        .filter(|k| !forest.tree.contains(k))
+        .map(|&(u, v)| {
+            let path = forest.cycle_through(u, v);
+            let (mut closure, mut var) = (0.0, 0.0);
+            for i in 0..path.len() {
+                let (d, s) = value(path[i], path[(i + 1) % path.len()]);
+                closure += d;
+                var += s * s;
+            }
+            let sigma = var.sqrt();
+            CycleClosure {
+                ligands: path.iter().map(|&i| names[i].clone()).collect(),
+                closure,
+                sigma,
+                flagged: closure.abs() > 2.0 * sigma,
+            }
+        })
+        .collect()
+}
+
+/// A breadth-first spanning forest: each node's parent and depth, and the
+/// forest's edges as (low, high) pairs.
+struct Forest {
+    parent: Vec<Option<usize>>,
+    depth: Vec<usize>,
+    tree: BTreeSet<(usize, usize)>,
+}
+
+fn spanning_forest(n: usize, pairs: impl Iterator<Item = (usize, usize)>) -> Forest {
     let mut adj: Vec<Vec<usize>> = vec![Vec::new(); n];
-    for &(a, b) in merged.keys() {
+    for (a, b) in pairs {
         adj[a].push(b);
         adj[b].push(a);
     }
-    let mut parent: Vec<Option<usize>> = vec![None; n];
-    let mut depth = vec![0usize; n];
+    let mut f = Forest {
+        parent: vec![None; n],
+        depth: vec![0; n],
+        tree: BTreeSet::new(),
+    };
     let mut seen = vec![false; n];
-    let mut tree = std::collections::BTreeSet::new();
     for root in 0..n {
         if seen[root] {
             continue;
@@ -157,49 +190,35 @@ pub(super) fn cycle_basis(
             for &v in &adj[u] {
                 if !seen[v] {
                     seen[v] = true;
-                    parent[v] = Some(u);
-                    depth[v] = depth[u] + 1;
-                    tree.insert((u.min(v), u.max(v)));
+                    f.parent[v] = Some(u);
+                    f.depth[v] = f.depth[u] + 1;
+                    f.tree.insert((u.min(v), u.max(v)));
                     queue.push_back(v);
                 }
             }
         }
     }
-    let mut out = Vec::new();
-    for &(u, v) in merged.keys() {
-        if tree.contains(&(u, v)) {
-            continue;
-        }
-        // Tree path u → … → lca and v → … → lca, then the cycle u → lca → v → u.
+    f
+}
+
+impl Forest {
+    /// The cycle closed by the off-forest edge u – v: the tree path
+    /// u → … → lca → … → v (then v → u closes it).
+    fn cycle_through(&self, u: usize, v: usize) -> Vec<usize> {
         let (mut x, mut y) = (u, v);
         let (mut up, mut down) = (vec![x], vec![y]);
         while x != y {
-            if depth[x] >= depth[y] {
-                x = parent[x].expect("same tree");
+            if self.depth[x] >= self.depth[y] {
+                x = self.parent[x].expect("same tree");
                 up.push(x);
             } else {
-                y = parent[y].expect("same tree");
+                y = self.parent[y].expect("same tree");
                 down.push(y);
             }
         }
         down.pop();
         down.reverse();
-        let mut path = up;
-        path.extend(down);
-        let (mut closure, mut var) = (0.0, 0.0);
-        for i in 0..path.len() {
-            let (p, q) = (path[i], path[(i + 1) % path.len()]);
-            let (d, s) = value(p, q);
-            closure += d;
-            var += s * s;
-        }
-        let sigma = var.sqrt();
-        out.push(CycleClosure {
-            ligands: path.iter().map(|&i| names[i].clone()).collect(),
-            closure,
-            sigma,
-            flagged: closure.abs() > 2.0 * sigma,
-        });
+        up.extend(down);
+        up
     }
-    out
 }

@@ -3,6 +3,10 @@
 
 #![allow(dead_code)]
 
+/// The calibration scenarios shared with the calibration benchmark.
+#[path = "../../../numerics/examples/calibration/scenarios.rs"]
+pub mod scenarios;
+
 use legwork::collect::{LegSamples, WindowSamples};
 use rand::SeedableRng;
 use rand_chacha::ChaCha8Rng;
@@ -62,7 +66,7 @@ pub fn harmonic_leg(r: &mut ChaCha8Rng, ks: &[f64], cs: &[f64], n: usize, phi: f
     LegSamples::from_windows(windows)
 }
 
-/// Writes a window table (DESIGN.md format) with the given energy unit; `rows`
+/// Writes a window table (README: *The window table*) with the given energy unit; `rows`
 /// holds (dudl, energies at every state).
 pub fn write_table(
     path: &Path,

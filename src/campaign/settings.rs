@@ -120,6 +120,24 @@ fn check_scheduler(ctx: &mut Ctx, node: &Node, cfg: &SchedulerConfig, templates_
     ) {
         ctx.in_range(n, "scheduler.marker_grace_seconds", g, 0, 86_400);
     }
+    if let Some(n) = child(node, "command_timeout_seconds") {
+        ctx.in_range(
+            n,
+            "scheduler.command_timeout_seconds",
+            cfg.command_timeout_seconds,
+            1,
+            3600,
+        );
+    }
+    if let Some(n) = child(node, "outage_wait_seconds") {
+        ctx.in_range(
+            n,
+            "scheduler.outage_wait_seconds",
+            cfg.outage_wait_seconds,
+            0,
+            7 * 86_400,
+        );
+    }
     if let (Some(n), Some(t)) = (child(node, "batch_template"), &cfg.batch_template) {
         batch_template(ctx, n, t, templates_dir);
     }

@@ -44,6 +44,14 @@ pub struct SchedulerConfig {
     /// the others).
     #[serde(default)]
     pub marker_grace_seconds: Option<u64>,
+    /// Seconds one scheduler command may take before it is stopped (a submission
+    /// stopped this way is looked up by name before anything else happens).
+    #[serde(default = "default_command_timeout")]
+    pub command_timeout_seconds: u64,
+    /// Seconds legwork keeps asking an unreachable scheduler (capped exponential
+    /// back-off) before a query failure ends `watch` or `run`.
+    #[serde(default = "default_outage_wait")]
+    pub outage_wait_seconds: u64,
     /// The folder holding the scheduler's commands (`sbatch`, `squeue`, …), for a
     /// site with several installations; default: found on `PATH`.
     #[serde(default)]
@@ -80,6 +88,8 @@ impl Default for SchedulerConfig {
             walltime_factor: default_walltime_factor(),
             array_throttle: 0,
             marker_grace_seconds: None,
+            command_timeout_seconds: default_command_timeout(),
+            outage_wait_seconds: default_outage_wait(),
             commands_dir: None,
             command_env: Vec::new(),
             executor_exe: None,
@@ -95,6 +105,12 @@ fn default_max_attempts() -> u32 {
 }
 fn default_poll() -> f64 {
     30.0
+}
+fn default_command_timeout() -> u64 {
+    60
+}
+fn default_outage_wait() -> u64 {
+    900
 }
 fn default_walltime_factor() -> f64 {
     1.5

@@ -107,7 +107,7 @@ impl Scheduler for Lsf {
             args.push("-w".into());
             args.push(conds.join(" && "));
         }
-        let out = self.runner.run_stdin("bsub", &args, &sub.script)?;
+        let out = self.runner.run_once_stdin("bsub", &args, &sub.script)?;
         // `Job <123> is submitted to queue <normal>.`
         let id = out
             .stdout

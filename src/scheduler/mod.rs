@@ -176,6 +176,7 @@ pub fn build(config: &SchedulerConfig, root: &Path, campaign: &str) -> Box<dyn S
     let runner = runner::Runner {
         program_dir: config.commands_dir.clone(),
         env: config.command_env.clone(),
+        timeout: std::time::Duration::from_secs(config.command_timeout_seconds.max(1)),
         ..runner::Runner::default()
     };
     (config.kind.spec().build)(kind::BuildContext {

@@ -128,7 +128,7 @@ impl Scheduler for Pbs {
             args.push(format!("depend=afterok:{}", ids.join(":")));
         }
         args.push(sub.script.display().to_string());
-        let out = self.runner.run("qsub", &args)?;
+        let out = self.runner.run_once("qsub", &args)?;
         let id = out.stdout.trim().to_string();
         if id.is_empty() || !id.chars().next().unwrap().is_ascii_digit() {
             return Err(SchedulerError::Parse {

@@ -29,7 +29,7 @@ pub enum RunError {
         attempts: u32,
     },
     /// The command exited non-zero (after retries, if the failure looked transient).
-    #[error("`{command}` exited with {code:?}: {stderr}")]
+    #[error("`{command}` {}: {stderr}", ended(*code))]
     Failed {
         /// The command line.
         command: String,
@@ -40,6 +40,14 @@ pub enum RunError {
         /// What it printed on standard output.
         stdout: String,
     },
+}
+
+/// How a command ended, in words: "exited with status 1", "was killed by a signal".
+fn ended(code: Option<i32>) -> String {
+    match code {
+        Some(c) => format!("exited with status {c}"),
+        None => "was killed by a signal".into(),
+    }
 }
 
 /// Output of a command that exited 0.
@@ -105,6 +113,20 @@ fn looks_transient(stderr: &str) -> bool {
     TRANSIENT.iter().any(|t| s.contains(t))
 }
 
+impl RunError {
+    /// Whether the failure may be the scheduler's passing state (a timeout, a
+    /// busy or unreachable controller, a command killed by a signal) rather than
+    /// a refusal of the request. For a submission this means "it may or may not
+    /// have been taken".
+    pub fn is_transient(&self) -> bool {
+        match self {
+            RunError::Timeout { .. } => true,
+            RunError::Failed { stderr, code, .. } => looks_transient(stderr) || code.is_none(),
+            RunError::Spawn { .. } => false,
+        }
+    }
+}
+
 /// Quotes one argument for the log so the line can be pasted into a shell.
 fn quote(arg: &str) -> String {
     if !arg.is_empty()
@@ -132,6 +154,32 @@ impl Runner {
     /// Runs `program args…`, retrying transient failures; Ok only on exit 0.
     pub fn run(&self, program: &str, args: &[String]) -> Result<Output, RunError> {
         self.run_in(program, args, None)
+    }
+
+    /// Runs `program args…` exactly once, whatever the failure: for a command
+    /// that changes the scheduler (a submission), where a retry after an
+    /// ambiguous failure could do it twice. The caller resolves the ambiguity
+    /// (see `state::submit_once`).
+    pub fn run_once(&self, program: &str, args: &[String]) -> Result<Output, RunError> {
+        Runner {
+            attempts: 1,
+            ..self.clone()
+        }
+        .run_in(program, args, None)
+    }
+
+    /// As [`Runner::run_once`] with standard input read from a file.
+    pub fn run_once_stdin(
+        &self,
+        program: &str,
+        args: &[String],
+        stdin: &std::path::Path,
+    ) -> Result<Output, RunError> {
+        Runner {
+            attempts: 1,
+            ..self.clone()
+        }
+        .run_in(program, args, Some(stdin))
     }
 
     /// As [`Runner::run`] with standard input read from a file (`bsub < script`).
@@ -162,13 +210,7 @@ impl Runner {
             match self.once(program, args, stdin, &line) {
                 Ok(out) => return Ok(out),
                 Err(e) => {
-                    let transient = match &e {
-                        RunError::Timeout { .. } => true,
-                        RunError::Failed { stderr, code, .. } => {
-                            looks_transient(stderr) || code.is_none()
-                        }
-                        RunError::Spawn { .. } => false,
-                    };
+                    let transient = e.is_transient();
                     if !transient || attempt == attempts {
                         if let RunError::Timeout { .. } = e {
                             return Err(RunError::Timeout {
@@ -205,12 +247,21 @@ impl Runner {
             .stdout(Stdio::piped())
             .stderr(Stdio::piped());
         // A command in flight dies with legwork rather than finishing behind the
-        // back of the next legwork (which reconciles by job name instead).
+        // back of the next legwork (which reconciles by job name instead). The
+        // death signal only covers a parent that dies after it is set: one killed
+        // between fork and prctl has already handed the child to init, which the
+        // parent id shows, and the child then never execs.
         {
             use std::os::unix::process::CommandExt;
+            let parent = nix::unistd::getpid();
             unsafe {
-                cmd.pre_exec(|| {
+                cmd.pre_exec(move || {
                     nix::sys::prctl::set_pdeathsig(nix::sys::signal::Signal::SIGKILL)?;
+                    if nix::unistd::getppid() != parent {
+                        return Err(std::io::Error::other(
+                            "legwork ended before the command started",
+                        ));
+                    }
                     Ok(())
                 });
             }
@@ -310,9 +361,16 @@ mod tests {
             .run("sh", &["-c".into(), "echo nope >&2; exit 3".into()])
             .unwrap_err();
         match err {
-            RunError::Failed { code, stderr, .. } => {
-                assert_eq!(code, Some(3));
+            RunError::Failed {
+                ref code,
+                ref stderr,
+                ..
+            } => {
+                assert_eq!(*code, Some(3));
                 assert_eq!(stderr, "nope");
+                let text = err.to_string();
+                assert!(text.contains("exited with status 3: nope"), "{text}");
+                assert!(!text.contains("Some("), "{text}");
             }
             other => panic!("unexpected {other}"),
         }

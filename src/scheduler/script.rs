@@ -11,7 +11,9 @@ pub fn builtin_template(kind: SchedulerKind) -> &'static str {
     kind.spec().template
 }
 
-/// The task wrapper. Arguments: task directory, attempt, job id. It writes
+/// The task wrapper. Arguments: task directory, attempt, job id. It claims the
+/// attempt (`.attempt-N.claim`, created exclusively: a second job for the same
+/// attempt exits 0 without running anything), writes
 /// `.started.json` (time, host, job id, attempt), runs `bash task.sh` in the task
 /// directory and writes `.exited.json` (exit code or signal, end time) — also when
 /// the scheduler sends SIGTERM at walltime or on cancellation, because the trap
@@ -22,6 +24,13 @@ dir=$1; attempt=$2; job=$3
 cd "$dir" || { echo "legwork: cannot enter task directory $dir" >&2; exit 2; }
 now() { date -u +%Y-%m-%dT%H:%M:%S.%NZ; }
 esc() { local s=${1//\\/\\\\}; printf '%s' "${s//\"/\\\"}"; }
+# One start per attempt, whatever the queue did: a second job carrying an
+# attempt already started here (a submission that reached the scheduler twice)
+# stops before it touches anything.
+if ! ( set -o noclobber; printf '%s\n' "$job" > ".attempt-$attempt.claim" ) 2>/dev/null; then
+  echo "legwork: attempt $attempt in $dir was already started by $(cat ".attempt-$attempt.claim" 2>/dev/null); not running it twice" >&2
+  exit 0
+fi
 started=$(now)
 rm -f .exited.json
 printf '{"time":"%s","host":"%s","job":"%s","attempt":%s,"pid":%s}\n' \

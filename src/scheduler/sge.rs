@@ -200,7 +200,7 @@ impl Scheduler for Sge {
             args.push(ids.join(","));
         }
         args.push(sub.script.display().to_string());
-        let out = self.runner.run("qsub", &args)?;
+        let out = self.runner.run_once("qsub", &args)?;
         // -terse prints `123` or, for arrays, `123.1-5:1`.
         let id = out
             .stdout

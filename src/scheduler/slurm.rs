@@ -157,7 +157,7 @@ impl Scheduler for Slurm {
         }
         args.push(format!("--chdir={}", sub.root.display()));
         args.push(sub.script.display().to_string());
-        let out = self.runner.run("sbatch", &args)?;
+        let out = self.runner.run_once("sbatch", &args)?;
         // --parsable prints `jobid` or `jobid;cluster`.
         let id = out
             .stdout

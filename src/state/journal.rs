@@ -118,6 +118,7 @@ pub struct Journal {
     file: File,
     len: u64,
     since_snapshot: u64,
+    damage: Option<String>,
 }
 
 impl Journal {
@@ -151,6 +152,13 @@ impl Journal {
             .open(&path)
             .map_err(io(&path))?;
         let total = file.metadata().map_err(io(&path))?.len();
+        let mut damage = None;
+        if start > total {
+            damage = Some(format!(
+                "{} is shorter than its snapshot says ({total} of {start} bytes): it was cut or replaced",
+                path.display()
+            ));
+        }
         let start = if start > total { 0 } else { start };
         if start == 0 && total > 0 {
             state = StateData::default();
@@ -162,6 +170,7 @@ impl Journal {
         let mut lineno = 0usize;
         let mut buf = Vec::new();
         let mut events = 0u64;
+        let mut set_aside: Vec<String> = Vec::new();
         loop {
             buf.clear();
             let n = reader.read_until(b'\n', &mut buf).map_err(io(&path))?;
@@ -185,15 +194,40 @@ impl Journal {
                     break;
                 }
                 Err(e) => {
-                    return Err(JournalError::Corrupt {
-                        path: path.clone(),
-                        line: lineno,
-                        detail: e.to_string(),
-                    })
+                    // One unreadable line must not block every verb: it is
+                    // set aside with its line number, the rest is replayed,
+                    // and the tree fills in what it said.
+                    tracing::warn!(
+                        "{}:{lineno}: unreadable line ({e}); set aside",
+                        path.display()
+                    );
+                    set_aside.push(format!(
+                        "{lineno}\t{}",
+                        String::from_utf8_lossy(&buf).trim_end()
+                    ));
+                    good = offset;
                 }
             }
         }
         drop(reader);
+        if !set_aside.is_empty() {
+            let side = dir.join("journal.damaged");
+            let mut text = set_aside.join("\n");
+            text.push('\n');
+            crate::fsutil::write_atomic(&side, text.as_bytes()).map_err(io(&side))?;
+            damage = Some(format!(
+                "{} had {} unreadable line{} (kept with {} in {})",
+                path.display(),
+                set_aside.len(),
+                if set_aside.len() == 1 { "" } else { "s" },
+                if set_aside.len() == 1 {
+                    "its line number"
+                } else {
+                    "their line numbers"
+                },
+                side.display()
+            ));
+        }
         if good < total {
             file.set_len(good).map_err(io(&path))?;
         }
@@ -204,6 +238,7 @@ impl Journal {
                 file,
                 len: good,
                 since_snapshot: events,
+                damage,
             },
             state,
         ))
@@ -236,6 +271,12 @@ impl Journal {
         self.len += out.len() as u64;
         self.since_snapshot += events.len() as u64;
         Ok(())
+    }
+
+    /// What replay found wrong with the journal (damaged lines set aside, or a
+    /// journal shorter than its snapshot), once.
+    pub fn take_damage(&mut self) -> Option<String> {
+        self.damage.take()
     }
 
     /// Events appended since the last snapshot.

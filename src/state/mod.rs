@@ -11,17 +11,20 @@ pub mod journal;
 pub mod lock;
 pub mod markers;
 pub mod ops;
+pub mod outage;
 pub mod reasons;
 pub mod record;
+pub mod recover;
 pub mod selection;
+pub mod submit_once;
 pub mod summary;
 mod tracker;
 
 pub use journal::{Event, Journal, JournalError};
 pub use lock::{CampaignLock, LockError};
 pub use ops::{
-    cancel, poll, reconcile, rescan, resume, submit_ready, watch_until_settled, CancelSummary,
-    PollSummary, ResumeSummary, Settled, SubmitSummary,
+    cancel, poll, reconcile, rescan, resume, submit_ready, submit_ready_within,
+    watch_until_settled, CancelSummary, PollSummary, ResumeSummary, Settled, SubmitSummary,
 };
 pub use record::{
     FailureKind, SubmissionRecord, SubmissionStatus, SubmittedTask, TaskRecord, TaskState,
@@ -235,6 +238,19 @@ pub struct Context<'a> {
 pub trait Clock: Sync {
     /// Now.
     fn now(&self) -> chrono::DateTime<chrono::Utc>;
+
+    /// Waits `d` (a scheduler outage's back-off); a test clock advances instead.
+    /// Returns early when Ctrl-C came.
+    fn sleep(&self, d: std::time::Duration) {
+        let end = std::time::Instant::now() + d;
+        while !interrupt::interrupted() {
+            let now = std::time::Instant::now();
+            if now >= end {
+                break;
+            }
+            std::thread::sleep((end - now).min(std::time::Duration::from_millis(50)));
+        }
+    }
 }
 
 /// The machine's clock.
@@ -259,6 +275,7 @@ pub struct CampaignState {
     data: StateData,
     journal: Journal,
     pending: Vec<Event>,
+    recovery: Option<String>,
     _lock: CampaignLock,
 }
 
@@ -268,7 +285,8 @@ impl CampaignState {
     pub fn open(root: &Path, plan: Plan, lock_wait: Duration) -> Result<CampaignState, StateError> {
         let dir = root.join(".legwork");
         let lock = CampaignLock::acquire(&dir, lock_wait)?;
-        let (journal, data) = Journal::open(&dir)?;
+        let (mut journal, data) = Journal::open(&dir)?;
+        let recovery = journal.take_damage();
         let index = plan
             .tasks
             .iter()
@@ -283,6 +301,7 @@ impl CampaignState {
             data,
             journal,
             pending: Vec::new(),
+            recovery,
             _lock: lock,
         })
     }
@@ -350,6 +369,12 @@ impl CampaignState {
             self.journal.snapshot(&self.data)?;
         }
         Ok(())
+    }
+
+    /// Why the state must be rebuilt from the tree (the journal was damaged or
+    /// shorter than its snapshot), once.
+    pub fn take_recovery(&mut self) -> Option<String> {
+        self.recovery.take()
     }
 
     /// Writes a snapshot now.

@@ -20,6 +20,10 @@ pub struct SubmitSummary {
     pub tasks: usize,
     /// Ready tasks held back by `scheduler.max_queued`.
     pub held_back: usize,
+    /// Tasks whose submission is left for the next round: it came back
+    /// ambiguous and could not be resolved yet, or the time for this round's
+    /// submissions was spent (so polling goes on while a controller is slow).
+    pub deferred: usize,
 }
 
 /// What [`poll`] saw.
@@ -123,6 +127,22 @@ pub fn reconcile(
     Ok(intents.len())
 }
 
+/// When the journal was found damaged or shorter than its snapshot, rebuilds
+/// the state from the tree and the scheduler, with a one-line notice.
+fn recover_if_damaged(
+    state: &mut CampaignState,
+    sched: &mut dyn Scheduler,
+    ctx: &Context,
+) -> Result<(), StateError> {
+    if let Some(why) = state.take_recovery() {
+        let n = rescan(state, sched, ctx)?;
+        tracing::warn!(
+            "{why}; rebuilt the state from the snapshot, the rest of the journal, the task directories and the scheduler ({n} tasks updated)"
+        );
+    }
+    Ok(())
+}
+
 /// The job id holding the current attempt of task `i`, if it is live in a known job.
 fn live_job(state: &CampaignState, i: TaskIndex) -> Option<(String, usize)> {
     let r = state.data.tasks.get(&state.plan.tasks[i].id)?;
@@ -147,7 +167,24 @@ pub fn submit_ready(
     ctx: &Context,
     sel: &super::Selection,
 ) -> Result<SubmitSummary, StateError> {
+    submit_ready_within(state, sched, ctx, sel, None)
+}
+
+/// As [`submit_ready`], but starts no new submission once `budget` has passed
+/// (the rest waits for the next round, so a slow controller does not stall the
+/// polls of `watch`).
+pub fn submit_ready_within(
+    state: &mut CampaignState,
+    sched: &mut dyn Scheduler,
+    ctx: &Context,
+    sel: &super::Selection,
+    time_budget: Option<Duration>,
+) -> Result<SubmitSummary, StateError> {
     reconcile(state, sched)?;
+    recover_if_damaged(state, sched, ctx)?;
+    let started = Instant::now();
+    let mut stalled = false;
+    let mut rebuilt = false;
     let mut summary = SubmitSummary::default();
     let live = state
         .data
@@ -163,11 +200,32 @@ pub fn submit_ready(
     let mut wrapper = None;
     for b in 0..state.plan.batches.len() {
         let mut chosen = ready_members(state, b, sel);
+        if !rebuilt
+            && chosen
+                .iter()
+                .any(|&(_, ti)| super::recover::tree_knows_more(state, ti))
+        {
+            // The tree shows work the journal does not know: rebuild first
+            // (once), then decide again.
+            rebuilt = true;
+            let n = rescan(state, sched, ctx)?;
+            tracing::warn!(
+                "the task directories show work the journal does not know (a lost or cut journal?): rebuilt the state from them and the scheduler ({n} tasks updated)"
+            );
+            chosen = ready_members(state, b, sel);
+        }
+        // Never submit an attempt the tree shows already ran.
+        chosen.retain(|&(_, ti)| !super::recover::tree_knows_more(state, ti));
         if budget < chosen.len() {
             summary.held_back += chosen.len() - budget;
             chosen.truncate(budget);
         }
         if chosen.is_empty() {
+            continue;
+        }
+        let spent = time_budget.is_some_and(|b| summary.submissions > 0 && started.elapsed() >= b);
+        if stalled || spent {
+            summary.deferred += chosen.len();
             continue;
         }
         let wrapper_path = match &wrapper {
@@ -183,7 +241,12 @@ pub fn submit_ready(
             &ctx.config.options,
             wrapper_path,
         )?;
-        submit_one(state, sched, &submission, intent)?;
+        if !submit_one(state, sched, &submission, intent)? {
+            summary.deferred += chosen.len();
+            // The scheduler is struggling: the rest waits for the next round.
+            stalled = true;
+            continue;
+        }
         summary.submissions += 1;
         summary.tasks += chosen.len();
         budget -= chosen.len();
@@ -319,14 +382,18 @@ fn build_submission(
 }
 
 /// Journals `intent` (fsynced: a crash from here on is resolved by job name),
-/// then submits, then journals the job id — or the abandonment, returning the
-/// scheduler's error.
+/// then submits exactly once ([`super::submit_once`]), then journals the job id
+/// — or the abandonment of a submission the scheduler certainly did not take.
+/// A refusal is returned as the scheduler's error; false means the outcome is
+/// left for the next round (unresolved, or not taken while the scheduler
+/// answers only with transient failures).
 fn submit_one(
     state: &mut CampaignState,
     sched: &mut dyn Scheduler,
     submission: &Submission,
     intent: Event,
-) -> Result<(), StateError> {
+) -> Result<bool, StateError> {
+    use super::submit_once::{ambiguous, submit_exactly_once, SubmitOutcome};
     let Event::Intent { sub, .. } = intent else {
         unreachable!("build_submission makes an intent")
     };
@@ -334,20 +401,29 @@ fn submit_one(
         .map_err(|e| scheduler::SchedulerError::io(&submission.log_dir, e))?;
     state.record_event(intent);
     state.commit()?;
-    match sched.submit(submission) {
-        Ok(job) => {
+    match submit_exactly_once(sched, submission, &std::thread::sleep) {
+        SubmitOutcome::Taken(job) => {
             state.record_event(Event::Submitted { sub, job });
             state.commit()?;
-            Ok(())
+            Ok(true)
         }
-        Err(e) => {
+        SubmitOutcome::NotTaken(e) => {
             state.record_event(Event::Abandoned {
                 sub,
                 why: e.to_string(),
             });
             state.commit()?;
-            Err(e.into())
+            if ambiguous(&e) {
+                tracing::warn!(
+                    "{}: not submitted this round ({e}); legwork tries again at the next poll",
+                    submission.name
+                );
+                Ok(false)
+            } else {
+                Err(e.into())
+            }
         }
+        SubmitOutcome::Unresolved(_) => Ok(false),
     }
 }
 
@@ -359,12 +435,13 @@ pub fn poll(
     ctx: &Context,
 ) -> Result<PollSummary, StateError> {
     reconcile(state, sched)?;
+    recover_if_damaged(state, sched, ctx)?;
     let mut summary = PollSummary::default();
     let (live, jobs) = live_elements(state, &*sched);
     if live.is_empty() {
         return Ok(summary);
     }
-    let result = sched.query(&jobs)?;
+    let result = super::outage::patiently(ctx, "the queue query", || sched.query(&jobs))?;
     let now = ctx.clock.now();
     let mut to_cancel = Vec::new();
     for (ti, element, attempt) in live {
@@ -712,7 +789,7 @@ pub fn watch_until_settled(
         let submitted = if stop.load(Ordering::SeqCst) {
             SubmitSummary::default()
         } else {
-            submit_ready(state, sched, ctx, &super::Selection::all())?
+            submit_ready_within(state, sched, ctx, &super::Selection::all(), Some(interval))?
         };
         let summary = Summary::with_limit(state, ctx.config.max_attempts);
         progress(&summary);
@@ -723,7 +800,7 @@ pub fn watch_until_settled(
                 polls,
             });
         }
-        if summary.total.live() == 0 && submitted.tasks == 0 {
+        if summary.total.live() == 0 && submitted.tasks == 0 && submitted.deferred == 0 {
             return Ok(Settled {
                 summary,
                 interrupted: false,
@@ -774,17 +851,17 @@ pub fn rescan(
         let walltime = r.walltime_s.unwrap_or(0).max(task.resources.walltime_s);
         let plan = &state.plan;
         let check = || ctx.hooks.check_output(plan, ti, &dir);
+        let in_tree = super::recover::tree_attempt(&dir);
         let (status, attempt) = match latest.get(&task.id) {
+            // The tree has seen a later attempt than the journal (a cut journal).
+            Some((_, attempt, _)) if in_tree > *attempt => (None, in_tree),
             Some((job, attempt, idx)) => {
                 let st = (!job.is_empty())
                     .then(|| result.elements.get(&sched.element_id(job, *idx)))
                     .flatten();
                 (Some(st), *attempt)
             }
-            None => (
-                None,
-                markers::exited_any(&dir).map(|e| e.attempt).unwrap_or(0),
-            ),
+            None => (None, in_tree),
         };
         let (new, reason, kind) = match status {
             Some(st) => match classify(st, &dir, attempt, walltime, &check) {

@@ -4,9 +4,7 @@
 //! and `rescan` rebuilds the state from the task markers alone.
 
 use crate::scheduler_support::{exit_code_context, plan, Stub};
-use legwork::state::{
-    self, CampaignState, Event, Journal, JournalError, StateError, SubmittedTask, TaskState,
-};
+use legwork::state::{self, CampaignState, Event, Journal, StateError, SubmittedTask, TaskState};
 use std::io::Write;
 use std::time::Duration;
 
@@ -62,20 +60,25 @@ fn replay_returns_what_was_written_and_drops_a_torn_tail() {
 }
 
 #[test]
-fn a_corrupt_line_in_the_middle_is_an_error_naming_it() {
+fn a_corrupt_line_in_the_middle_is_set_aside_with_its_number_and_the_rest_replayed() {
     let d = tempfile::tempdir().unwrap();
     let (mut j, _) = Journal::open(d.path()).unwrap();
     j.append(&events(2)).unwrap();
     drop(j);
+    let (_, expect_full) = Journal::open(d.path()).unwrap();
     let path = d.path().join("journal.jsonl");
     let text = std::fs::read_to_string(&path).unwrap();
     let mut lines: Vec<&str> = text.lines().collect();
     lines.insert(1, "not json");
     std::fs::write(&path, lines.join("\n") + "\n").unwrap();
-    match Journal::open(d.path()) {
-        Err(JournalError::Corrupt { line, .. }) => assert_eq!(line, 2),
-        other => panic!("expected a corrupt-line error, got {other:?}"),
-    }
+    let (mut j3, state) = Journal::open(d.path()).unwrap();
+    assert_eq!(state, expect_full, "every readable line is replayed");
+    let why = j3.take_damage().expect("the damage is reported");
+    assert!(why.contains("1 unreadable line"), "{why}");
+    assert_eq!(
+        std::fs::read_to_string(d.path().join("journal.damaged")).unwrap(),
+        "2\tnot json\n"
+    );
 }
 
 #[test]

@@ -112,7 +112,7 @@ fn drive(
     let written = report::write_all(&campaign.root, &results)?;
     print_outcome(&results, &counts, &written, global)?;
     if summary.all_done() {
-        Ok(())
+        super::collect::incomplete(&campaign.name, &results, &counts, &target(args))
     } else {
         Err(Exit::incomplete(format!(
             "{} of {} tasks are not done ({} failed, {} lost, {} cancelled); the results above cover what finished. \

@@ -92,6 +92,7 @@ pub fn write_all(root: &Path, r: &Results) -> Result<Written, ReportError> {
         (results_dir.join("edges.csv"), tables::edges_csv(r)),
         (results_dir.join("ligands.csv"), tables::ligands_csv(r)),
         (results_dir.join("cycles.csv"), tables::cycles_csv(r)),
+        (results_dir.join("missing.csv"), tables::missing_csv(r)),
         (results_dir.join("summary.json"), tables::summary_json(r)),
         (html_path.clone(), html::render(r)?),
     ];

@@ -5,6 +5,7 @@
 //! is set.
 
 mod estimate_support;
+mod life_support;
 mod reference_support;
 mod scheduler_support;
 mod skip;
@@ -29,6 +30,7 @@ mod late_marker;
 mod local;
 mod lsf;
 mod network;
+mod partial_results;
 mod pbs;
 mod reader;
 mod report;

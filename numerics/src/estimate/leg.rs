@@ -231,7 +231,15 @@ pub fn estimate_leg(
                 d
             }
             Method::ExpForward | Method::ExpReverse => {
-                let per = exp_pairs(leg, &used, &resid, *m == Method::ExpForward)?;
+                // EXP is never needed by another method: its failure costs only
+                // its own value, with a warning (the headline check is the caller's).
+                let per = match exp_pairs(leg, &used, &resid, *m == Method::ExpForward) {
+                    Ok(per) => per,
+                    Err(e) => {
+                        warnings.push(format!("{m} skipped: {e}"));
+                        continue;
+                    }
+                };
                 for (p, d) in pairs.iter_mut().zip(&per) {
                     p.estimates.insert(*m, *d);
                 }
@@ -323,9 +331,11 @@ pub fn estimate_leg(
         }
     }
 
+    // The convergence series is a diagnostic: a subset that cannot be estimated
+    // is a warning, never a failed leg.
     let convergence = if opts.convergence {
         let method = methods.first().copied().unwrap_or(Method::Mbar);
-        Some(convergence(
+        match convergence(
             leg,
             method,
             &used,
@@ -333,7 +343,15 @@ pub fn estimate_leg(
             ti_used.as_deref(),
             ti_g.as_deref(),
             &sol,
-        )?)
+        ) {
+            Ok(c) => Some(c),
+            Err(e) => {
+                warnings.push(format!(
+                    "convergence series skipped: a part of the data could not be estimated ({e})"
+                ));
+                None
+            }
+        }
     } else {
         None
     };

@@ -22,8 +22,8 @@ pub struct Args {
     /// The campaign's tree is here instead of the file's `root:`.
     #[arg(long, value_name = "DIR")]
     pub root: Option<PathBuf>,
-    /// Seconds to wait for another legwork holding the campaign's lock.
-    #[arg(long, default_value_t = 10.0)]
+    /// Seconds to wait for another legwork writing results/ and report/.
+    #[arg(long, default_value_t = 60.0)]
     pub lock_wait: f64,
 }
 
@@ -32,14 +32,17 @@ pub fn run(args: Args, global: &Global) -> anyhow::Result<()> {
     let loaded = load_or_exit(&args.file, args.root.clone(), false)?;
     let campaign = loaded.campaign;
     let plan = plan::expand(&campaign);
-    let state = CampaignState::open(
-        &campaign.root,
-        plan,
-        Duration::from_secs_f64(args.lock_wait.max(0.0)),
-    )
-    .map_err(super::status::state_exit)?;
+    // Collecting only looks: a read-only view of the journal, no writer lock, so
+    // it works while `watch` or `run` holds the campaign. Only the writing of
+    // results/ and report/ takes a lock of its own.
+    let state =
+        CampaignState::open_read_only(&campaign.root, plan).map_err(super::status::state_exit)?;
     let (results, counts) = collect_with_state(&campaign, &state, global)?;
-    let written = report::write_all(&campaign.root, &results)?;
+    let written = report::write_all_locked(
+        &campaign.root,
+        &results,
+        Duration::from_secs_f64(args.lock_wait.max(0.0)),
+    )?;
     print_outcome(&results, &counts, &written, global)?;
     incomplete(
         &campaign.name,

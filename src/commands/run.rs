@@ -109,7 +109,7 @@ fn drive(
     }
 
     let (results, counts) = collect_with_state(campaign, state, global)?;
-    let written = report::write_all(&campaign.root, &results)?;
+    let written = report::write_all_locked(&campaign.root, &results, Duration::from_secs(60))?;
     print_outcome(&results, &counts, &written, global)?;
     if summary.all_done() {
         super::collect::incomplete(&campaign.name, &results, &counts, &target(args))

@@ -9,19 +9,25 @@ use std::path::{Path, PathBuf};
 /// Writes `campaign.yaml` into `dir` (with `extra` appended to its top level)
 /// and returns its path. The tree goes to `dir/tree`.
 pub fn small_campaign(dir: &Path, extra: &str) -> PathBuf {
+    small_campaign_with(dir, "{}", extra)
+}
+
+/// As [`small_campaign`], with `vars` (a YAML mapping) on the third edge,
+/// ork-02+ork-03 (e.g. a demo-engine fault for that edge alone).
+pub fn small_campaign_with(dir: &Path, third_edge_vars: &str, extra: &str) -> PathBuf {
     let repo = Path::new(env!("CARGO_MANIFEST_DIR"));
     let text = format!(
         "campaign: life-demo
 seed: 11
 templates: {templates}
 root: tree
-scheduler: {{ kind: local, max_parallel: 2, poll_seconds: 0.2, max_attempts: 2 }}
+scheduler: {{ kind: local, max_parallel: 16, poll_seconds: 0.2, max_attempts: 2 }}
 vars: {{ dimensions: 3, phi: 0.9, checkpoint_every: 100 }}
 ligands: {ligands}
 edges:
   - [ork-01, ork-02]
   - [ork-01, ork-03]
-  - [ork-02, ork-03]
+  - {{ a: ork-02, b: ork-03, vars: {third_edge_vars} }}
 legs:
   complex:
     sign: 1

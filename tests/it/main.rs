@@ -28,6 +28,7 @@ mod experiment;
 mod journal;
 mod late_marker;
 mod local;
+mod looking;
 mod lsf;
 mod network;
 mod partial_results;

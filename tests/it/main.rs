@@ -33,6 +33,7 @@ mod lsf;
 mod network;
 mod partial_results;
 mod pbs;
+mod progress;
 mod reader;
 mod report;
 mod report_fixture;

@@ -2,7 +2,7 @@
 //! and the campaign-level warnings, one step per function.
 
 use super::info::CampaignInfo;
-use super::results::{LegReplica, MissingWork, Results, RESULTS_SCHEMA};
+use super::results::{LeftOut, LegReplica, MissingWork, Results, RESULTS_SCHEMA};
 use crate::collect::experiment::IC50_NOTE;
 use crate::cycle::{
     combine_edge_directed, edge_directions, CampaignKind, CycleError, EdgeResult, LegValue,
@@ -31,13 +31,14 @@ pub enum AssembleError {
 }
 
 /// Closes every subject's cycle, solves the network (relative campaigns),
-/// compares with `measured` and collects warnings. Subjects with a leg that has
-/// no finished replica are left out with a warning; list them in `missing`.
+/// compares with `measured` and collects warnings. A subject whose cycle
+/// cannot be closed (a leg with no result: list its replicas in `missing`) is
+/// left out, with the reason, in [`Results::left_out`]; a network that cannot
+/// be solved is a warning, and the edges stay.
 ///
 /// # Errors
 ///
-/// A cycle that cannot be closed (other than for an unfinished leg), a network
-/// that cannot be solved, or a relative campaign's subject that is not `a+b`.
+/// A relative campaign's subject that is not `a+b`.
 pub fn assemble(
     info: &CampaignInfo,
     legs: Vec<LegReplica>,
@@ -45,17 +46,26 @@ pub fn assemble(
     missing: Vec<MissingWork>,
 ) -> Result<Results, AssembleError> {
     let mut warnings = Vec::new();
-    let mut edges = close_cycles(info, &legs, &mut warnings)?;
+    let mut left_out = Vec::new();
+    let mut edges = close_cycles(info, &legs, &missing, &mut left_out, &mut warnings)?;
     let ligands = match info.kind {
         CampaignKind::Relative if !edges.is_empty() => {
-            fit_network(info, &mut edges, &measured, &mut warnings)?
+            match fit_network(info, &mut edges, &measured, &mut warnings) {
+                Ok(l) => l,
+                Err(e) => {
+                    warnings.push(format!(
+                        "the network could not be solved, so there are no per-ligand results: {e}"
+                    ));
+                    Ligands::default()
+                }
+            }
         }
         CampaignKind::Relative => Ligands::default(),
         _ => Ligands::from_cycles(&edges, &measured),
     };
     let statistics = (!measured.is_empty())
         .then(|| compare_estimates(&ligands.ligands, &edges, &measured, info.seed));
-    campaign_warnings(&legs, &measured, &missing, &mut warnings);
+    campaign_warnings(&legs, &measured, &missing, &left_out, &mut warnings);
     Ok(Results {
         schema: RESULTS_SCHEMA,
         campaign: info.name.clone(),
@@ -73,6 +83,7 @@ pub fn assemble(
         measured,
         statistics,
         missing,
+        left_out,
         warnings,
     })
 }
@@ -104,11 +115,13 @@ fn subject(info: &CampaignInfo, id: &str) -> Result<Subject, AssembleError> {
     })
 }
 
-/// One cycle per subject from its leg replicas; a subject with an unfinished
-/// leg is left out with a warning.
+/// One cycle per subject from its leg replicas; a subject whose cycle cannot
+/// be closed is left out, with the reason.
 fn close_cycles(
     info: &CampaignInfo,
     legs: &[LegReplica],
+    missing: &[MissingWork],
+    left_out: &mut Vec<LeftOut>,
     warnings: &mut Vec<String>,
 ) -> Result<Vec<EdgeResult>, AssembleError> {
     let parsed = subjects(legs)
@@ -118,6 +131,16 @@ fn close_cycles(
     // An edge whose reverse came first takes its constant corrections negated.
     let directions = edge_directions(&parsed.iter().map(|p| p.1.clone()).collect::<Vec<_>>());
     let mut edges = Vec::new();
+    for m in missing {
+        if !legs.iter().any(|l| l.subject == m.subject)
+            && !left_out.iter().any(|o| o.subject == m.subject)
+        {
+            left_out.push(LeftOut {
+                subject: m.subject.clone(),
+                reason: no_result_reason(&m.subject, None, missing),
+            });
+        }
+    }
     for ((s, subject), direction) in parsed.into_iter().zip(directions) {
         let values: Vec<LegValue> = legs
             .iter()
@@ -142,18 +165,36 @@ fn close_cycles(
                 warnings.extend(e.warnings.iter().cloned());
                 edges.push(e);
             }
-            Err(CycleError::MissingLeg { subject, leg }) => warnings.push(format!(
-                "{subject}: leg '{leg}' has no finished replica yet, so this {} is left out",
-                if info.kind == CampaignKind::Relative {
-                    "edge"
-                } else {
-                    "ligand"
-                }
-            )),
-            Err(e) => return Err(e.into()),
+            Err(CycleError::MissingLeg { subject, leg }) => left_out.push(LeftOut {
+                reason: no_result_reason(&subject, Some(&leg), missing),
+                subject,
+            }),
+            Err(e) => left_out.push(LeftOut {
+                subject: s.to_string(),
+                reason: format!("its cycle could not be closed: {e}"),
+            }),
         }
     }
     Ok(edges)
+}
+
+/// Why a subject has no result: its leg (or every leg) has no leg replica
+/// with a result, and what became of its replicas.
+fn no_result_reason(subject: &str, leg: Option<&str>, missing: &[MissingWork]) -> String {
+    let of: Vec<String> = missing
+        .iter()
+        .filter(|m| m.subject == subject && leg.map_or(true, |l| m.leg == l))
+        .map(|m| format!("{}/r{} {}", m.leg, m.replica, m.status.as_str()))
+        .collect();
+    let head = match leg {
+        Some(l) => format!("leg '{l}' has no replica with a result"),
+        None => "no leg replica has a result".to_string(),
+    };
+    if of.is_empty() {
+        head
+    } else {
+        format!("{head} ({})", of.join(", "))
+    }
 }
 
 /// Per-ligand results and what the network adds to them.
@@ -231,11 +272,12 @@ fn fit_network(
 }
 
 /// Warnings about the campaign as a whole: IC50 measurements, low overlap,
-/// unfinished work.
+/// unfinished and failed work, subjects left out.
 fn campaign_warnings(
     legs: &[LegReplica],
     measured: &[Measured],
     missing: &[MissingWork],
+    left_out: &[LeftOut],
     warnings: &mut Vec<String>,
 ) {
     if measured.iter().any(|m| m.kind == MeasuredKind::Ic50) {
@@ -252,10 +294,31 @@ fn campaign_warnings(
             low.join(", ")
         ));
     }
-    if !missing.is_empty() {
+    let failed = missing
+        .iter()
+        .filter(|m| m.status == super::results::MissingStatus::Failed)
+        .count();
+    let unfinished = missing.len() - failed;
+    if unfinished > 0 {
         warnings.push(format!(
-            "{} leg replica(s) are not finished; results cover finished work only",
-            missing.len()
+            "{unfinished} leg replica(s) are not finished; results cover finished work only"
+        ));
+    }
+    if failed > 0 {
+        warnings.push(format!(
+            "{failed} finished leg replica(s) could not be estimated (see 'Missing' and results/missing.csv); the other results do not use them"
+        ));
+    }
+    if !left_out.is_empty() {
+        let names: Vec<&str> = left_out.iter().map(|o| o.subject.as_str()).collect();
+        warnings.push(format!(
+            "no result for {}: {}",
+            if left_out.len() == 1 {
+                "1 subject".to_string()
+            } else {
+                format!("{} subjects", left_out.len())
+            },
+            names.join(", ")
         ));
     }
 }

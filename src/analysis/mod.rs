@@ -24,5 +24,6 @@ pub use info::{leg_spec, CampaignInfo};
 pub use leg::method_name;
 pub use pipeline::{analyse_campaign, AnalysisError, Counts};
 pub use results::{
-    Convergence, LegReplica, MethodValue, MissingWork, Results, WindowSummary, RESULTS_SCHEMA,
+    Convergence, LeftOut, LegReplica, MethodValue, MissingStatus, MissingWork, Results,
+    WindowSummary, RESULTS_SCHEMA,
 };

@@ -1,10 +1,12 @@
 //! The campaign pipeline: every leg replica whose windows are all done is read
 //! (by [`crate::collect::gather`]), estimated, turned into a [`LegReplica`] and
-//! handed to [`assemble`]; every other one is listed as missing.
+//! handed to [`assemble`]; every other one is listed as missing. A leg replica
+//! whose reading or estimate fails is listed as failed, with the reason, and
+//! never stops the others: everything else is computed from what is there.
 
 use super::assemble::{assemble, AssembleError};
 use super::info::CampaignInfo;
-use super::results::{LegReplica, MissingWork, Results};
+use super::results::{LegReplica, MissingStatus, MissingWork, Results};
 use crate::campaign::Campaign;
 use crate::collect::cache::ParseCache;
 use crate::collect::experiment::{read_measured, ExperimentError};
@@ -62,6 +64,8 @@ pub struct Counts {
     pub legs: usize,
     /// Leg replicas not finished.
     pub missing: usize,
+    /// Leg replicas finished whose reading or estimate failed.
+    pub failed: usize,
     /// Window files parsed from text.
     pub parsed: usize,
     /// Window files taken from the parse cache.
@@ -72,11 +76,13 @@ pub struct Counts {
 /// done) into results. `progress` is called after each leg replica with
 /// (finished, total).
 ///
+/// A leg replica that cannot be read or estimated is listed in
+/// [`Results::missing`] as failed, with the reason; the rest goes on.
+///
 /// # Errors
 ///
-/// No stage to analyse, a finished window that cannot be read, a leg that
-/// cannot be estimated, an unreadable experiment file, or cycles and network
-/// that cannot be assembled.
+/// No stage to analyse, an unreadable experiment file, or a relative
+/// campaign's subject that is not `a+b`.
 pub fn analyse_campaign(
     campaign: &Campaign,
     plan: &Plan,
@@ -88,12 +94,12 @@ pub fn analyse_campaign(
         .windows
         .iter()
         .partition(|set| set.tasks.iter().all(|&t| done(t)));
-    let missing: Vec<MissingWork> = waiting.iter().map(|set| missing_work(set, done)).collect();
+    let mut missing: Vec<MissingWork> = waiting.iter().map(|set| missing_work(set, done)).collect();
     let cache = ParseCache::for_campaign(campaign, plan);
     let opts = EstimateOptions::from_analysis(&campaign.analysis);
     let read = Mutex::new(ReadCounts::default());
     let finished = AtomicUsize::new(0);
-    let legs: Vec<LegReplica> = ready
+    let outcomes: Vec<Result<LegReplica, MissingWork>> = ready
         .par_iter()
         .map(|set| {
             let paths: Vec<PathBuf> = set
@@ -101,12 +107,31 @@ pub fn analyse_campaign(
                 .iter()
                 .map(|&t| campaign.root.join(&plan.tasks[t].dir).join(&output))
                 .collect();
-            let (entry, counts) = analyse_leg_replica(campaign, set, &cache, &paths, &opts)?;
-            *read.lock().expect("no panic while counting") += counts;
+            let outcome = analyse_leg_replica(campaign, set, &cache, &paths, &opts);
             progress(finished.fetch_add(1, Ordering::Relaxed) + 1, ready.len());
-            Ok(entry)
+            match outcome {
+                Ok((entry, counts)) => {
+                    *read.lock().expect("no panic while counting") += counts;
+                    Ok(entry)
+                }
+                Err(e) => {
+                    tracing::warn!("{e}");
+                    Err(failed_work(set, &e))
+                }
+            }
         })
-        .collect::<Result<_, AnalysisError>>()?;
+        .collect();
+    let mut legs = Vec::with_capacity(outcomes.len());
+    let mut failed = 0;
+    for o in outcomes {
+        match o {
+            Ok(entry) => legs.push(entry),
+            Err(m) => {
+                failed += 1;
+                missing.push(m);
+            }
+        }
+    }
     let measured = match &campaign.experiment {
         Some(p) => read_measured(p, campaign.temperature_k, campaign.unit)?,
         None => Vec::new(),
@@ -114,7 +139,8 @@ pub fn analyse_campaign(
     let read = read.into_inner().expect("no panic while counting");
     let counts = Counts {
         legs: legs.len(),
-        missing: missing.len(),
+        missing: missing.len() - failed,
+        failed,
         parsed: read.parsed,
         cached: read.cached,
     };
@@ -150,7 +176,27 @@ fn missing_work(set: &WindowSet, done: &(dyn Fn(TaskIndex) -> bool + Sync)) -> M
         replica: set.replica,
         windows_done: finished,
         windows_total: set.tasks.len(),
+        status: MissingStatus::Unfinished,
         note: format!("{} of {} windows done", finished, set.tasks.len()),
+    }
+}
+
+/// A finished leg replica whose reading or estimate failed, with the reason
+/// (the error without the leg replica's name, which the entry already has).
+fn failed_work(set: &WindowSet, e: &AnalysisError) -> MissingWork {
+    let note = match e {
+        AnalysisError::Read { source, .. } => format!("its windows could not be read: {source}"),
+        AnalysisError::Estimate { source, .. } => format!("its estimate failed: {source}"),
+        other => other.to_string(),
+    };
+    MissingWork {
+        subject: set.subject.id(),
+        leg: set.leg.clone(),
+        replica: set.replica,
+        windows_done: set.tasks.len(),
+        windows_total: set.tasks.len(),
+        status: MissingStatus::Failed,
+        note,
     }
 }
 

@@ -50,9 +50,13 @@ pub struct Results {
     /// Statistics against experiment, when there are measurements.
     #[serde(default)]
     pub statistics: Option<Comparison>,
-    /// Leg replicas that are not finished yet.
+    /// Leg replicas without a result: not finished yet, or finished but
+    /// their estimate failed ([`MissingWork::status`] says which, `note` why).
     #[serde(default)]
     pub missing: Vec<MissingWork>,
+    /// Subjects (edges, or ligands of absolute campaigns) with no result, and why.
+    #[serde(default)]
+    pub left_out: Vec<LeftOut>,
     /// Campaign-level warnings.
     #[serde(default)]
     pub warnings: Vec<String>,
@@ -161,7 +165,37 @@ pub struct LegReplica {
     pub warnings: Vec<String>,
 }
 
-/// A leg replica that has not finished.
+/// Why a leg replica has no result.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum MissingStatus {
+    /// Some of its windows are not done yet.
+    #[default]
+    Unfinished,
+    /// Every window is done, but reading or estimating them failed.
+    Failed,
+}
+
+impl MissingStatus {
+    /// The name used in files (`unfinished`, `failed`).
+    pub fn as_str(self) -> &'static str {
+        match self {
+            MissingStatus::Unfinished => "unfinished",
+            MissingStatus::Failed => "failed",
+        }
+    }
+}
+
+/// A subject (edge or ligand) that has no result.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct LeftOut {
+    /// Subject id.
+    pub subject: String,
+    /// Why, e.g. "leg 'complex' has no usable replica (1 failed)".
+    pub reason: String,
+}
+
+/// A leg replica without a result: not finished, or its estimate failed.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct MissingWork {
     /// Subject id.
@@ -174,12 +208,29 @@ pub struct MissingWork {
     pub windows_done: usize,
     /// Windows the leg has.
     pub windows_total: usize,
-    /// Why it is missing (e.g. "3 windows failed", "queued").
+    /// Unfinished or failed.
+    #[serde(default)]
+    pub status: MissingStatus,
+    /// Why it is missing (e.g. "3 of 12 windows done", or the reader's or
+    /// estimator's error).
     #[serde(default)]
     pub note: String,
 }
 
 impl Results {
+    /// Whether anything the campaign asks for has no result (a leg replica
+    /// unfinished or failed, a subject left out).
+    pub fn incomplete(&self) -> bool {
+        !self.missing.is_empty() || !self.left_out.is_empty()
+    }
+
+    /// Leg replicas whose estimate failed.
+    pub fn failed(&self) -> impl Iterator<Item = &MissingWork> {
+        self.missing
+            .iter()
+            .filter(|m| m.status == MissingStatus::Failed)
+    }
+
     /// The campaign unit's size of 1 kcal/mol (for the ±1 kcal/mol band).
     pub fn one_kcal(&self) -> f64 {
         EnergyUnit::KcalPerMol.convert(1.0, self.unit, self.temperature_k)

@@ -22,8 +22,8 @@ pub struct Args {
     /// The campaign's tree is here instead of the file's `root:`.
     #[arg(long, value_name = "DIR")]
     pub root: Option<PathBuf>,
-    /// Seconds to wait for another legwork holding the campaign's lock.
-    #[arg(long, default_value_t = 10.0)]
+    /// Seconds to wait for another legwork writing results/ and report/.
+    #[arg(long, default_value_t = 60.0)]
     pub lock_wait: f64,
 }
 
@@ -32,24 +32,72 @@ pub fn run(args: Args, global: &Global) -> anyhow::Result<()> {
     let loaded = load_or_exit(&args.file, args.root.clone(), false)?;
     let campaign = loaded.campaign;
     let plan = plan::expand(&campaign);
-    let state = CampaignState::open(
-        &campaign.root,
-        plan,
-        Duration::from_secs_f64(args.lock_wait.max(0.0)),
-    )
-    .map_err(super::status::state_exit)?;
+    // Collecting only looks: a read-only view of the journal, no writer lock, so
+    // it works while `watch` or `run` holds the campaign. Only the writing of
+    // results/ and report/ takes a lock of its own.
+    let state =
+        CampaignState::open_read_only(&campaign.root, plan).map_err(super::status::state_exit)?;
     let (results, counts) = collect_with_state(&campaign, &state, global)?;
-    let written = report::write_all(&campaign.root, &results)?;
+    let written = report::write_all_locked(
+        &campaign.root,
+        &results,
+        Duration::from_secs_f64(args.lock_wait.max(0.0)),
+    )?;
     print_outcome(&results, &counts, &written, global)?;
-    if counts.legs == 0 {
+    incomplete(
+        &campaign.name,
+        &results,
+        &counts,
+        &args.file.display().to_string(),
+    )
+}
+
+/// Exit code 3 when the results do not cover the whole campaign: a leg replica
+/// failed or unfinished, or a subject left out. The results written cover
+/// everything else.
+pub fn incomplete(
+    name: &str,
+    results: &Results,
+    counts: &Counts,
+    file: &str,
+) -> anyhow::Result<()> {
+    if counts.legs == 0 && counts.failed == 0 {
         return Err(Exit::incomplete(format!(
-            "no leg replica of {} has all its windows done yet; `legwork status {}` shows where they are",
-            campaign.name,
-            args.file.display()
+            "no leg replica of {name} has all its windows done yet; `legwork status {file}` shows where they are"
         ))
         .into());
     }
-    Ok(())
+    if !results.incomplete() {
+        return Ok(());
+    }
+    let mut parts = Vec::new();
+    if counts.failed > 0 {
+        parts.push(format!(
+            "{} leg replica(s) could not be estimated",
+            counts.failed
+        ));
+    }
+    if counts.missing > 0 {
+        parts.push(format!("{} are not finished", counts.missing));
+    }
+    if !results.left_out.is_empty() {
+        parts.push(format!(
+            "{} subject(s) have no result",
+            results.left_out.len()
+        ));
+    }
+    let hint = if counts.failed > 0 {
+        format!(
+            "hint: the reasons are in results/missing.csv; fix or rerun those windows, then `legwork collect {file}` again"
+        )
+    } else {
+        format!("hint: `legwork status {file}` shows where the rest is")
+    };
+    Err(Exit::incomplete(format!(
+        "the results of {name} are incomplete: {}; everything else was computed and written\n{hint}",
+        parts.join(", ")
+    ))
+    .into())
 }
 
 /// Analyses the campaign using `state` to know which tasks are done, with a
@@ -96,8 +144,16 @@ pub fn print_outcome(
     report::print_summary(results, &mut out)?;
     writeln!(
         out,
-        "\nCollected {} leg replicas ({} windows parsed, {} from cache); {} not finished.",
-        counts.legs, counts.parsed, counts.cached, counts.missing
+        "\nCollected {} leg replicas ({} windows parsed, {} from cache); {} not finished{}.",
+        counts.legs,
+        counts.parsed,
+        counts.cached,
+        counts.missing,
+        if counts.failed > 0 {
+            format!(", {} failed", counts.failed)
+        } else {
+            String::new()
+        }
     )?;
     writeln!(
         out,

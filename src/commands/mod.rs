@@ -10,6 +10,7 @@ pub mod estimate;
 pub mod expand;
 pub mod man;
 pub mod new;
+pub mod progress;
 pub mod propose;
 pub mod report;
 pub mod resume;

@@ -54,7 +54,7 @@ pub fn run(args: Args, global: &Global) -> anyhow::Result<()> {
         )),
         other => Exit::bad_input(other.to_string()),
     })?;
-    let written = report::write_all(&root, &results)?;
+    let written = report::write_all_locked(&root, &results, std::time::Duration::from_secs(60))?;
     if !global.quiet {
         let stdout = std::io::stdout();
         let mut out = stdout.lock();

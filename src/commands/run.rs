@@ -5,7 +5,6 @@
 
 use super::collect::{collect_with_state, print_outcome};
 use super::status::{state_exit, table, with_loaded};
-use super::watch::Bars;
 use crate::campaign::Campaign;
 use crate::cli::Global;
 use crate::exit::Exit;
@@ -34,6 +33,10 @@ pub struct Args {
     /// Seconds to wait for another legwork holding the campaign's lock.
     #[arg(long, default_value_t = 10.0)]
     pub lock_wait: f64,
+    /// Off a terminal, print a progress record at most every this many seconds
+    /// (when something changed). On a terminal, bars are drawn instead.
+    #[arg(long, value_name = "SECONDS", default_value_t = super::progress::DEFAULT_EVERY_S)]
+    pub progress_every: f64,
 }
 
 /// Runs `legwork run`.
@@ -81,7 +84,11 @@ fn drive(
         );
     }
 
-    let bars = Bars::new(global.quiet);
+    let bars = super::progress::Follow::new(
+        global.quiet,
+        Duration::from_secs_f64(args.progress_every.max(0.0)),
+    );
+    bars.update(&state.summary());
     let summary = loop {
         let settled =
             state::watch_until_settled(state, sched, ctx, interval, stop, &mut |s| bars.update(s))
@@ -97,6 +104,7 @@ fn drive(
         if r.requeued.is_empty() {
             break Summary::with_limit(state, campaign.scheduler.max_attempts);
         }
+        bars.resubmitted(r.requeued.len());
         tracing::info!(
             "resubmitted {} failed or lost tasks ({} from a checkpoint)",
             r.requeued.len(),
@@ -109,10 +117,10 @@ fn drive(
     }
 
     let (results, counts) = collect_with_state(campaign, state, global)?;
-    let written = report::write_all(&campaign.root, &results)?;
+    let written = report::write_all_locked(&campaign.root, &results, Duration::from_secs(60))?;
     print_outcome(&results, &counts, &written, global)?;
     if summary.all_done() {
-        Ok(())
+        super::collect::incomplete(&campaign.name, &results, &counts, &target(args))
     } else {
         Err(Exit::incomplete(format!(
             "{} of {} tasks are not done ({} failed, {} lost, {} cancelled); the results above cover what finished. \

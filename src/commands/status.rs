@@ -140,9 +140,54 @@ pub fn with_loaded<T>(
     f(&mut opened)
 }
 
-/// Runs `legwork status`.
+/// Runs `legwork status`. Without `--rescan` it never waits: when another
+/// legwork holds the campaign (a `watch` or `run` that keeps the journal
+/// current), it shows a read-only view of the journal instead of querying the
+/// scheduler itself.
 pub fn run(args: Args, global: &Global) -> anyhow::Result<()> {
+    if !args.rescan {
+        let loaded = super::watch::load(&args.file, args.root.clone())?;
+        let dir = loaded.root.join(".legwork");
+        match crate::state::CampaignLock::acquire(&dir, Duration::ZERO) {
+            Ok(probe) => drop(probe),
+            Err(crate::state::LockError::Busy { holder, .. }) => {
+                return read_only_status(&args, &loaded, &holder, global);
+            }
+            Err(e) => return Err(state_exit(e.into())),
+        }
+        return with_loaded(loaded, args.lock_wait, global, |c| show(&args, c, global));
+    }
     with_campaign(&args.file, args.root.clone(), args.lock_wait, global, |c| {
+        show(&args, c, global)
+    })
+}
+
+/// The table (or JSON) from a read-only view, with a note saying whose.
+fn read_only_status(
+    args: &Args,
+    loaded: &super::watch::Loaded,
+    holder: &str,
+    global: &Global,
+) -> anyhow::Result<()> {
+    let state =
+        CampaignState::open_read_only(&loaded.root, loaded.plan.clone()).map_err(state_exit)?;
+    let summary = Summary::with_limit(&state, loaded.config.max_attempts);
+    if !global.quiet {
+        eprintln!(
+            "note: {holder} is following this campaign; this is its journal as of now (it queries the scheduler, so this status does not)"
+        );
+    }
+    if args.json {
+        println!("{}", serde_json::to_string_pretty(&summary)?);
+    } else {
+        print!("{}", table(&summary, loaded.config.kind, args.all));
+    }
+    Ok(())
+}
+
+/// One poll (or a rescan), then the table or JSON.
+fn show(args: &Args, c: &mut Opened, global: &Global) -> anyhow::Result<()> {
+    {
         if args.rescan {
             let n = state::rescan(c.state, c.sched.as_mut(), &c.ctx).map_err(state_exit)?;
             if !args.json && !global.quiet {
@@ -158,7 +203,7 @@ pub fn run(args: Args, global: &Global) -> anyhow::Result<()> {
             print!("{}", table(&summary, c.sched.kind(), args.all));
         }
         Ok(())
-    })
+    }
 }
 
 /// The status table as text.

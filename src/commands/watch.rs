@@ -34,6 +34,10 @@ pub struct Args {
     /// Seconds to wait for another legwork holding the campaign's lock.
     #[arg(long, default_value_t = 10.0)]
     pub lock_wait: f64,
+    /// Off a terminal, print a progress record at most every this many seconds
+    /// (when something changed). On a terminal, bars are drawn instead.
+    #[arg(long, value_name = "SECONDS", default_value_t = super::progress::DEFAULT_EVERY_S)]
+    pub progress_every: f64,
 }
 
 /// A campaign as the scheduler verbs need it.
@@ -141,7 +145,13 @@ pub fn run(args: Args, global: &Global) -> anyhow::Result<()> {
         }
         let interval =
             Duration::from_secs_f64(args.interval.unwrap_or(c.ctx.config.poll_seconds).max(0.05));
-        let bars = Bars::new(global.quiet);
+        let bars = super::progress::Follow::new(
+            global.quiet,
+            Duration::from_secs_f64(args.progress_every.max(0.0)),
+        );
+        // The state before this watch submits anything: the baseline of the
+        // first record's "submitted".
+        bars.update(&c.state.summary());
         let settled = state::watch_until_settled(
             c.state,
             c.sched.as_mut(),

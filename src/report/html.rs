@@ -136,6 +136,7 @@ struct Page {
     edges: Vec<EdgeRow>,
     closures: Vec<ClosureRow>,
     missing: Vec<crate::analysis::MissingWork>,
+    left_out: Vec<crate::analysis::LeftOut>,
     legs: Vec<LegView>,
     overlap_floor: String,
     version: &'static str,
@@ -144,7 +145,11 @@ struct Page {
 impl Page {
     fn new(r: &Results) -> Result<Page, HtmlError> {
         let relative = r.edges.iter().any(|e| e.ligand_b.is_some());
-        let (overview, measured) = overview(r, relative)?;
+        let mut warnings = r.warnings.clone();
+        let (overview, measured) = overview(r, relative).unwrap_or_else(|e| {
+            warnings.push(format!("the overview plots could not be drawn: {e}"));
+            (Vec::new(), false)
+        });
         Ok(Page {
             campaign: r.campaign.clone(),
             kind: r.kind.as_str(),
@@ -162,7 +167,7 @@ impl Page {
                 if r.uses_ic50() { IC50_NOTE } else { NO_IC50 },
                 CAUTION_CLUSTER,
             ],
-            warnings: r.warnings.clone(),
+            warnings,
             leg_warnings: r.legs.iter().map(|l| l.warnings.len()).sum(),
             overview,
             measured,
@@ -180,6 +185,7 @@ impl Page {
             edges: edge_rows(r),
             closures: closure_rows(r),
             missing: r.missing.clone(),
+            left_out: r.left_out.clone(),
             legs: leg_views(r)?,
             overlap_floor: OVERLAP_FLOOR.to_string(),
             version: env!("CARGO_PKG_VERSION"),
@@ -442,6 +448,16 @@ fn leg_views(r: &Results) -> Result<Vec<LegView>, HtmlError> {
 
 fn leg_view(r: &Results, l: &LegReplica, open: bool, plotted: bool) -> Result<LegView, HtmlError> {
     let opt_u = |v: Option<u64>| v.map(|v| v.to_string()).unwrap_or_else(|| "–".into());
+    let mut warnings = l.warnings.clone();
+    // A plot that cannot be drawn is a warning on its leg, never a missing page.
+    let figures = if plotted {
+        leg_figures(r, l).unwrap_or_else(|e| {
+            warnings.push(format!("its plots could not be drawn: {e}"));
+            Vec::new()
+        })
+    } else {
+        Vec::new()
+    };
     Ok(LegView {
         open,
         plotted,
@@ -454,7 +470,7 @@ fn leg_view(r: &Results, l: &LegReplica, open: bool, plotted: bool) -> Result<Le
             text: overlap_text(o),
             low: o < MIN_OVERLAP,
         }),
-        warnings: l.warnings.clone(),
+        warnings,
         methods: l
             .methods
             .iter()
@@ -464,11 +480,7 @@ fn leg_view(r: &Results, l: &LegReplica, open: bool, plotted: bool) -> Result<Le
                 sigma: f2(m.sigma),
             })
             .collect(),
-        figures: if plotted {
-            leg_figures(r, l)?
-        } else {
-            Vec::new()
-        },
+        figures,
         multi: l.windows.iter().any(|w| w.component.is_some()),
         windows: l
             .windows

@@ -92,6 +92,7 @@ pub fn write_all(root: &Path, r: &Results) -> Result<Written, ReportError> {
         (results_dir.join("edges.csv"), tables::edges_csv(r)),
         (results_dir.join("ligands.csv"), tables::ligands_csv(r)),
         (results_dir.join("cycles.csv"), tables::cycles_csv(r)),
+        (results_dir.join("missing.csv"), tables::missing_csv(r)),
         (results_dir.join("summary.json"), tables::summary_json(r)),
         (html_path.clone(), html::render(r)?),
     ];
@@ -117,6 +118,25 @@ pub fn write_all(root: &Path, r: &Results) -> Result<Written, ReportError> {
         html: html_path,
         files: written,
     })
+}
+
+/// [`write_all`] under the results lock (`<root>/.legwork/results-lock/lock`),
+/// waiting up to `wait` for another legwork writing them: two collects (or a
+/// collect and a report) never interleave their files. This lock is not the
+/// campaign's writer lock, so results are written while `watch` or `run` holds
+/// the campaign.
+pub fn write_all_locked(
+    root: &Path,
+    r: &Results,
+    wait: std::time::Duration,
+) -> Result<Written, ReportError> {
+    let dir = root.join(".legwork").join("results-lock");
+    let _lock =
+        crate::state::CampaignLock::acquire(&dir, wait).map_err(|e| ReportError::Write {
+            path: dir.join("lock"),
+            source: std::io::Error::other(e.to_string()),
+        })?;
+    write_all(root, r)
 }
 
 /// Writes `text` next to `path` under a temporary name ([`crate::fsutil::stage`]).

@@ -139,25 +139,42 @@ fn edges(r: &Results, out: &mut dyn Write) -> io::Result<()> {
     Ok(())
 }
 
-/// The unfinished leg replicas (the first ten).
+/// What has no result: failed leg replicas first (every one: each needs a
+/// look), then the unfinished ones (the first ten), then the subjects left out.
 fn missing(r: &Results, out: &mut dyn Write) -> io::Result<()> {
-    if r.missing.is_empty() {
+    if !r.incomplete() {
         return Ok(());
     }
-    writeln!(out, "\nNot finished ({} leg replicas):", r.missing.len())?;
-    for m in r.missing.iter().take(10) {
-        writeln!(
-            out,
-            "  {}/{}/r{}: {}/{} windows {}",
-            m.subject, m.leg, m.replica, m.windows_done, m.windows_total, m.note
-        )?;
+    let failed: Vec<_> = r.failed().collect();
+    if !failed.is_empty() {
+        writeln!(out, "\nFailed ({} leg replicas, no result):", failed.len())?;
+        for m in &failed {
+            writeln!(out, "  {}/{}/r{}: {}", m.subject, m.leg, m.replica, m.note)?;
+        }
     }
-    if r.missing.len() > 10 {
-        writeln!(
-            out,
-            "  … and {} more (see summary.json)",
-            r.missing.len() - 10
-        )?;
+    let unfinished: Vec<_> = r
+        .missing
+        .iter()
+        .filter(|m| m.status == crate::analysis::MissingStatus::Unfinished)
+        .collect();
+    if !unfinished.is_empty() {
+        writeln!(out, "\nNot finished ({} leg replicas):", unfinished.len())?;
+        for m in unfinished.iter().take(10) {
+            writeln!(out, "  {}/{}/r{}: {}", m.subject, m.leg, m.replica, m.note)?;
+        }
+        if unfinished.len() > 10 {
+            writeln!(
+                out,
+                "  … and {} more (see results/missing.csv)",
+                unfinished.len() - 10
+            )?;
+        }
+    }
+    if !r.left_out.is_empty() {
+        writeln!(out, "\nNo result ({}):", r.left_out.len())?;
+        for o in &r.left_out {
+            writeln!(out, "  {}: {}", o.subject, o.reason)?;
+        }
     }
     Ok(())
 }

@@ -214,6 +214,49 @@ pub fn cycles_csv(r: &Results) -> String {
     to_csv(&h, rows)
 }
 
+/// `results/missing.csv`: one row per leg replica without a result (status
+/// `unfinished` or `failed`, with the reason) and one per subject left out of
+/// the results (status `left_out`, leg and replica empty). Only the header when
+/// nothing is missing.
+pub fn missing_csv(r: &Results) -> String {
+    let h = header(&[
+        "subject",
+        "leg",
+        "replica",
+        "status",
+        "windows_done",
+        "windows_total",
+        "reason",
+    ]);
+    let mut rows: Vec<Vec<String>> = r
+        .missing
+        .iter()
+        .map(|m| {
+            vec![
+                m.subject.clone(),
+                m.leg.clone(),
+                m.replica.to_string(),
+                m.status.as_str().to_string(),
+                m.windows_done.to_string(),
+                m.windows_total.to_string(),
+                m.note.clone(),
+            ]
+        })
+        .collect();
+    rows.extend(r.left_out.iter().map(|o| {
+        vec![
+            o.subject.clone(),
+            String::new(),
+            String::new(),
+            "left_out".to_string(),
+            String::new(),
+            String::new(),
+            o.reason.clone(),
+        ]
+    }));
+    to_csv(&h, rows)
+}
+
 /// `results/summary.json`: the whole [`Results`], pretty-printed.
 pub fn summary_json(r: &Results) -> String {
     let mut s = serde_json::to_string_pretty(r).expect("Results serialises");

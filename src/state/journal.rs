@@ -72,10 +72,10 @@ pub enum Event {
 
 /// A journal line: when, and what.
 #[derive(Debug, Clone, Serialize, Deserialize)]
-struct Line {
+pub(super) struct Line {
     t: String,
     #[serde(flatten)]
-    event: Event,
+    pub(super) event: Event,
 }
 
 /// What went wrong with the journal or snapshot.
@@ -104,10 +104,10 @@ pub enum JournalError {
 
 /// The snapshot file's content.
 #[derive(Debug, Serialize, Deserialize)]
-struct Snapshot {
+pub(super) struct Snapshot {
     /// Journal bytes already folded into `state`.
-    journal_bytes: u64,
-    state: StateData,
+    pub(super) journal_bytes: u64,
+    pub(super) state: StateData,
 }
 
 /// The open journal (append side).

@@ -19,6 +19,7 @@ pub mod selection;
 pub mod submit_once;
 pub mod summary;
 mod tracker;
+mod view;
 
 pub use journal::{Event, Journal, JournalError};
 pub use lock::{CampaignLock, LockError};
@@ -266,17 +267,18 @@ impl Clock for SystemClock {
 /// Snapshot after this many journal events.
 const SNAPSHOT_EVERY: u64 = 50_000;
 
-/// A campaign's state, open for writing (the lock is held until drop).
+/// A campaign's state, open for writing (the lock is held until drop), or a
+/// read-only view of it ([`CampaignState::open_read_only`]: no lock, no journal).
 pub struct CampaignState {
     root: PathBuf,
     dir: PathBuf,
     plan: Plan,
     index: HashMap<String, TaskIndex>,
     data: StateData,
-    journal: Journal,
+    journal: Option<Journal>,
     pending: Vec<Event>,
     recovery: Option<String>,
-    _lock: CampaignLock,
+    _lock: Option<CampaignLock>,
 }
 
 impl CampaignState {
@@ -299,10 +301,10 @@ impl CampaignState {
             plan,
             index,
             data,
-            journal,
+            journal: Some(journal),
             pending: Vec::new(),
             recovery,
-            _lock: lock,
+            _lock: Some(lock),
         })
     }
 
@@ -364,9 +366,14 @@ impl CampaignState {
     /// grown enough since the last one.
     pub fn commit(&mut self) -> Result<(), StateError> {
         let events = std::mem::take(&mut self.pending);
-        self.journal.append(&events)?;
-        if self.journal.since_snapshot() >= SNAPSHOT_EVERY {
-            self.journal.snapshot(&self.data)?;
+        if events.is_empty() && self.is_read_only() {
+            return Ok(());
+        }
+        self.writable()?;
+        let journal = self.journal.as_mut().expect("writable");
+        journal.append(&events)?;
+        if journal.since_snapshot() >= SNAPSHOT_EVERY {
+            journal.snapshot(&self.data)?;
         }
         Ok(())
     }
@@ -380,7 +387,8 @@ impl CampaignState {
     /// Writes a snapshot now.
     pub fn compact(&mut self) -> Result<(), StateError> {
         self.commit()?;
-        self.journal.snapshot(&self.data)?;
+        let data = self.data.clone();
+        self.writable()?.snapshot(&data)?;
         Ok(())
     }
 
@@ -392,9 +400,9 @@ impl CampaignState {
 
 impl Drop for CampaignState {
     fn drop(&mut self) {
-        if !self.pending.is_empty() {
+        if let (false, Some(journal)) = (self.pending.is_empty(), self.journal.as_mut()) {
             let events = std::mem::take(&mut self.pending);
-            if let Err(e) = self.journal.append(&events) {
+            if let Err(e) = journal.append(&events) {
                 tracing::error!("could not write the journal on exit: {e}");
             }
         }

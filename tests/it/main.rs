@@ -5,6 +5,7 @@
 //! is set.
 
 mod estimate_support;
+mod life_support;
 mod reference_support;
 mod scheduler_support;
 mod skip;
@@ -31,11 +32,14 @@ mod experiment;
 mod journal;
 mod late_marker;
 mod local;
+mod looking;
 mod lsf;
 mod network;
 mod outage;
 mod own_engine;
+mod partial_results;
 mod pbs;
+mod progress;
 mod reader;
 mod report;
 mod report_fixture;

@@ -38,7 +38,7 @@ fn written() -> (tempfile::TempDir, Results) {
     let r = fixture::results();
     let w = write_all(dir.path(), &r).unwrap();
     assert_eq!(w.html, dir.path().join("report/index.html"));
-    assert_eq!(w.files.len(), 6);
+    assert_eq!(w.files.len(), 7);
     (dir, r)
 }
 
@@ -50,6 +50,7 @@ fn every_table_is_written_and_summary_json_is_the_results_model() {
         "edges.csv",
         "ligands.csv",
         "cycles.csv",
+        "missing.csv",
         "summary.json",
     ] {
         assert!(dir.path().join("results").join(f).is_file(), "{f} missing");

@@ -6,8 +6,8 @@
 #![allow(dead_code)]
 
 use legwork::analysis::{
-    assemble, CampaignInfo, Convergence, LegReplica, MethodValue, MissingWork, Results,
-    WindowSummary,
+    assemble, CampaignInfo, Convergence, LegReplica, MethodValue, MissingStatus, MissingWork,
+    Results, WindowSummary,
 };
 use legwork::collect::experiment::parse_measured;
 use legwork::cycle::{CampaignKind, LegSpec};
@@ -193,6 +193,7 @@ pub fn results() -> Results {
         replica: 3,
         windows_done: 9,
         windows_total: 12,
+        status: MissingStatus::Unfinished,
         note: "3 windows failed twice".into(),
     }];
     assemble(&info(), legs, measured, missing).unwrap()

@@ -60,6 +60,10 @@ pub struct Results {
     /// Campaign-level warnings.
     #[serde(default)]
     pub warnings: Vec<String>,
+    /// Core-hours, GPU-hours, rate and ETA when the results were collected
+    /// (absent when the analysis ran without the campaign's state).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub costs: Option<crate::state::costs::Costs>,
 }
 
 /// One estimator's answer for a leg replica.

@@ -126,7 +126,10 @@ pub fn collect_with_state(
     let result =
         analysis::analyse_campaign(campaign, plan, &done, &|n, _| bar.set_position(n as u64));
     bar.finish_and_clear();
-    result.map_err(|e| Exit::new(crate::exit::ExitKind::Failure, e.to_string()).into())
+    let (mut results, counts) =
+        result.map_err(|e| Exit::new(crate::exit::ExitKind::Failure, e.to_string()))?;
+    results.costs = Some(crate::state::costs::measure(state, chrono::Utc::now()));
+    Ok((results, counts))
 }
 
 /// Prints the terminal summary, what was read, and where the files are.

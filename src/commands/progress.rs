@@ -4,11 +4,13 @@
 //! poll. A record reads
 //!
 //! ```text
-//! 2026-12-02T15:10:00Z progress: 30/42 done · 12 running · 0 queued · 0 planned · 0 failed · 0 lost · 0 cancelled · since last: 12 submitted, 0 resubmitted · 9.8 tasks/min · ETA 1 min
+//! 2026-12-02T15:10:00Z progress: 30/42 done · 12 running · 0 queued · 0 planned · 0 failed · 0 lost · 0 cancelled · since last: 12 submitted, 0 resubmitted · 9.8 tasks/min · ETA 1 min · 0.52 core-h (0.03 failed) · 0 GPU-h (0 failed)
 //! ```
 //!
 //! The rate is tasks done since this process started, per minute of its wall
 //! time; the ETA is the tasks not done at that rate (absent until a task is done).
+//! The hours are the campaign's so far ([`crate::state::costs`]), measured from
+//! a read-only view of the journal and the task markers when a record is printed.
 
 use super::watch::Bars;
 use crate::state::summary::Counts;
@@ -19,6 +21,20 @@ use std::time::{Duration, Instant};
 
 /// Default seconds between progress records off a terminal.
 pub const DEFAULT_EVERY_S: f64 = 60.0;
+
+/// Measures the campaign's costs for a progress record (`None`: unknown now).
+pub(crate) type CostSource = Box<dyn Fn() -> Option<crate::state::costs::Costs>>;
+
+/// The costs of the campaign rooted at `root` with `plan`, from a read-only
+/// view (the caller holds the state mutably while it watches).
+pub(crate) fn cost_source(root: &std::path::Path, plan: &crate::plan::Plan) -> CostSource {
+    let root = root.to_path_buf();
+    let plan = plan.clone();
+    Box::new(move || {
+        let state = crate::state::CampaignState::open_read_only(&root, plan.clone()).ok()?;
+        Some(crate::state::costs::measure(&state, chrono::Utc::now()))
+    })
+}
 
 /// Progress shown by `run` and `watch`.
 pub(crate) enum Follow {
@@ -40,6 +56,14 @@ impl Follow {
         } else {
             Follow::Records(Box::new(RefCell::new(Records::new(every))))
         }
+    }
+
+    /// Progress records also carry the hours `costs` measures.
+    pub(crate) fn with_costs(self, costs: CostSource) -> Follow {
+        if let Follow::Records(r) = &self {
+            r.borrow_mut().costs = Some(costs);
+        }
+        self
     }
 
     /// A new look at the campaign.
@@ -84,6 +108,7 @@ pub(crate) struct Records {
     submitted: usize,
     resubmitted: usize,
     previous: Option<Counts>,
+    costs: Option<CostSource>,
 }
 
 impl Records {
@@ -98,6 +123,7 @@ impl Records {
             submitted: 0,
             resubmitted: 0,
             previous: None,
+            costs: None,
         }
     }
 
@@ -118,7 +144,11 @@ impl Records {
             self.latest = Some(s.clone());
             return;
         }
-        let line = self.line(c);
+        let mut line = self.line(c);
+        if let Some(costs) = self.costs.as_ref().and_then(|f| f()) {
+            line.push_str(" · ");
+            line.push_str(&crate::state::costs::record_fragment(&costs));
+        }
         let mut err = std::io::stderr().lock();
         let _ = writeln!(err, "{line}");
         self.last_print = Some(Instant::now());

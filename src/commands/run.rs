@@ -87,7 +87,8 @@ fn drive(
     let bars = super::progress::Follow::new(
         global.quiet,
         Duration::from_secs_f64(args.progress_every.max(0.0)),
-    );
+    )
+    .with_costs(super::progress::cost_source(state.root(), state.plan()));
     bars.update(&state.summary());
     let summary = loop {
         let settled =

@@ -178,9 +178,10 @@ fn read_only_status(
         );
     }
     if args.json {
-        println!("{}", serde_json::to_string_pretty(&summary)?);
+        println!("{}", with_costs(&summary, &state)?);
     } else {
         print!("{}", table(&summary, loaded.config.kind, args.all));
+        print!("{}", cost_table(&state));
     }
     Ok(())
 }
@@ -198,12 +199,27 @@ fn show(args: &Args, c: &mut Opened, global: &Global) -> anyhow::Result<()> {
         }
         let summary = Summary::with_limit(c.state, c.ctx.config.max_attempts);
         if args.json {
-            println!("{}", serde_json::to_string_pretty(&summary)?);
+            println!("{}", with_costs(&summary, c.state)?);
         } else {
             print!("{}", table(&summary, c.sched.kind(), args.all));
+            print!("{}", cost_table(c.state));
         }
         Ok(())
     }
+}
+
+/// The JSON `status --json` prints: the summary's keys and `costs`
+/// ([`state::costs::Costs`]).
+fn with_costs(summary: &Summary, state: &CampaignState) -> anyhow::Result<String> {
+    let mut v = serde_json::to_value(summary)?;
+    let costs = state::costs::measure(state, chrono::Utc::now());
+    v["costs"] = serde_json::to_value(costs)?;
+    Ok(serde_json::to_string_pretty(&v)?)
+}
+
+/// The cost table below the status table.
+fn cost_table(state: &CampaignState) -> String {
+    state::costs::table(&state::costs::measure(state, chrono::Utc::now()))
 }
 
 /// The status table as text.

@@ -148,7 +148,8 @@ pub fn run(args: Args, global: &Global) -> anyhow::Result<()> {
         let bars = super::progress::Follow::new(
             global.quiet,
             Duration::from_secs_f64(args.progress_every.max(0.0)),
-        );
+        )
+        .with_costs(super::progress::cost_source(c.state.root(), c.state.plan()));
         // The state before this watch submits anything: the baseline of the
         // first record's "submitted".
         bars.update(&c.state.summary());

@@ -66,6 +66,10 @@ fn templates() -> Result<&'static tera::Tera, HtmlError> {
                 include_str!("../../templates/report/leg.html.tera"),
             ),
             (
+                "costs.html",
+                include_str!("../../templates/report/costs.html.tera"),
+            ),
+            (
                 "index.html",
                 include_str!("../../templates/report/index.html.tera"),
             ),
@@ -140,6 +144,7 @@ struct Page {
     legs: Vec<LegView>,
     overlap_floor: String,
     version: &'static str,
+    costs: Option<super::cost_section::CostView>,
 }
 
 impl Page {
@@ -189,6 +194,7 @@ impl Page {
             legs: leg_views(r)?,
             overlap_floor: OVERLAP_FLOOR.to_string(),
             version: env!("CARGO_PKG_VERSION"),
+            costs: super::cost_section::cost_view(r.costs.as_ref()),
         })
     }
 }

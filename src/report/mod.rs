@@ -7,6 +7,7 @@
 //! for re-rendering, and [`print_summary`] writes the terminal summary.
 //! [`overlap_label`] is the one place an overlap value is spelled.
 
+mod cost_section;
 mod format;
 pub mod html;
 pub mod plots;
@@ -87,7 +88,7 @@ pub fn write_all(root: &Path, r: &Results) -> Result<Written, ReportError> {
     let results_dir = root.join("results");
     let report_dir = root.join("report");
     let html_path = report_dir.join("index.html");
-    let files: Vec<(PathBuf, String)> = vec![
+    let mut files: Vec<(PathBuf, String)> = vec![
         (results_dir.join("legs.csv"), tables::legs_csv(r)),
         (results_dir.join("edges.csv"), tables::edges_csv(r)),
         (results_dir.join("ligands.csv"), tables::ligands_csv(r)),
@@ -96,6 +97,9 @@ pub fn write_all(root: &Path, r: &Results) -> Result<Written, ReportError> {
         (results_dir.join("summary.json"), tables::summary_json(r)),
         (html_path.clone(), html::render(r)?),
     ];
+    if let Some(c) = &r.costs {
+        files.push((results_dir.join("costs.csv"), crate::state::costs::csv(c)));
+    }
     // Every temporary file first; only when all are written are they renamed
     // into place, so a failure (disk full, a folder that cannot be made) leaves
     // the previous results untouched.

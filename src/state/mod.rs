@@ -6,6 +6,7 @@
 //! [`crate::scheduler::Scheduler`] and journal what they learn. Only this process
 //! writes the journal; jobs write only their own task directory.
 
+pub mod costs;
 pub mod interrupt;
 pub mod journal;
 pub mod lock;

@@ -15,6 +15,7 @@ mod campaign_errors;
 mod campaign_limits;
 mod campaign_new;
 mod cli;
+mod costs;
 mod crash;
 mod cycle;
 mod cycle_demo;

@@ -531,7 +531,7 @@ pub fn write_tree_with(
         stale: stale_files(plan, &man),
         ..Default::default()
     };
-    let mut changed = man.fingerprint != fp;
+    let mut changed = man.fingerprint != fp || man.replayed;
     let to_write = triage(&decisions, &mut report, &mut man, &mut changed);
     if opts.dry_run {
         report.written = to_write.len();
@@ -653,6 +653,24 @@ fn write_all(
     flags: Flags,
     progress: &dyn Progress,
 ) -> Vec<Result<Outcome, RenderError>> {
+    let intents: Vec<manifest::Intent> = to_write
+        .iter()
+        .filter_map(|d| match &d.action {
+            Action::Write(c) => Some(manifest::Intent {
+                rel: d.rel.clone(),
+                hash: manifest::hash(c.as_bytes()),
+                attempt: d.attempt,
+                restart: d.restart,
+            }),
+            _ => None,
+        })
+        .collect();
+    if let Err(source) = manifest::record_intents(root, &intents) {
+        return vec![Err(RenderError::Io {
+            path: manifest::journal_path(root),
+            source,
+        })];
+    }
     progress.begin("writing", to_write.len());
     let results = to_write
         .par_chunks(128)
@@ -665,6 +683,7 @@ fn write_all(
                         .map(|e| Outcome::Written(d.rel.clone(), e)),
                     _ => unreachable!("only writes are queued"),
                 })
+                .inspect(|_| after_script_write())
                 .collect();
             progress.advance(chunk.len());
             out
@@ -739,14 +758,18 @@ pub fn render_tasks(
         let content = render_one(&tera, &builder, campaign, plan, i, attempt, restart)?;
         rendered.push((rel_path, abs, content, attempt, restart));
     }
+    let crashed = in_progress_path(&campaign.root).exists();
     let mut out = Vec::with_capacity(rendered.len());
+    let mut writes = Vec::with_capacity(rendered.len());
     for (rel_path, abs, content, attempt, restart) in rendered {
         let rel = rel_path.to_string_lossy().into_owned();
         let edited = match (std::fs::metadata(&abs).ok(), man.entries.get(&rel)) {
             (Some(m), Some(e)) => {
                 !entry_matches(&m, e) && disk_hash(&abs).as_deref() != Some(e.hash.as_str())
             }
-            (Some(_), None) => true,
+            // Without an entry a file is ours only if an expand stopped while
+            // creating it.
+            (Some(_), None) => !crashed,
             (None, _) => false,
         };
         if edited {
@@ -755,16 +778,52 @@ pub fn render_tasks(
                 abs.display()
             );
         } else {
-            let e = write_atomic(&abs, &content, attempt, restart)?;
-            man.entries.insert(rel, e);
+            writes.push((rel, abs.clone(), content, attempt, restart));
         }
         out.push(abs);
+    }
+    let intents: Vec<manifest::Intent> = writes
+        .iter()
+        .map(|(rel, _, content, attempt, restart)| manifest::Intent {
+            rel: rel.clone(),
+            hash: manifest::hash(content.as_bytes()),
+            attempt: *attempt,
+            restart: *restart,
+        })
+        .collect();
+    manifest::record_intents(&campaign.root, &intents).map_err(|source| RenderError::Io {
+        path: manifest::journal_path(&campaign.root),
+        source,
+    })?;
+    for (rel, abs, content, attempt, restart) in writes {
+        let e = write_atomic(&abs, &content, attempt, restart)?;
+        after_script_write();
+        man.entries.insert(rel, e);
     }
     man.save(&campaign.root).map_err(|source| RenderError::Io {
         path: manifest::path(&campaign.root),
         source,
     })?;
     Ok(out)
+}
+
+/// Test hook for the crash tests: with `LEGWORK_KILL_AFTER_SCRIPT_WRITES=k` in
+/// its environment the process kills itself (SIGKILL) right after its k-th task
+/// script write, so a test can stop a render between any two writes.
+fn after_script_write() {
+    use std::sync::atomic::{AtomicUsize, Ordering};
+    static LIMIT: std::sync::OnceLock<Option<usize>> = std::sync::OnceLock::new();
+    static WRITTEN: AtomicUsize = AtomicUsize::new(0);
+    let limit = LIMIT.get_or_init(|| {
+        std::env::var("LEGWORK_KILL_AFTER_SCRIPT_WRITES")
+            .ok()
+            .and_then(|v| v.parse().ok())
+    });
+    if let Some(k) = *limit {
+        if WRITTEN.fetch_add(1, Ordering::SeqCst) + 1 >= k {
+            let _ = nix::sys::signal::raise(nix::sys::signal::Signal::SIGKILL);
+        }
+    }
 }
 
 /// Re-renders one task's `task.sh` for a resubmission; see [`render_tasks`].

@@ -42,6 +42,7 @@ mod partial_results;
 mod pbs;
 mod progress;
 mod reader;
+mod render_crash;
 mod report;
 mod report_fixture;
 mod resume;

@@ -85,6 +85,7 @@ pub fn assemble(
         missing,
         left_out,
         warnings,
+        notes: Vec::new(),
     })
 }
 

@@ -88,6 +88,15 @@ fn drive(
         global.quiet,
         Duration::from_secs_f64(args.progress_every.max(0.0)),
     );
+    // Windows asked for more frames since they ran continue from their
+    // checkpoints (watch submits them); nothing else that is done runs again.
+    let short = super::life::extend_short_for_run(state, sched, ctx)?;
+    if short > 0 && !global.quiet {
+        eprintln!(
+            "{}: extending {short} short windows from their checkpoints",
+            campaign.name
+        );
+    }
     bars.update(&state.summary());
     let summary = loop {
         let settled =

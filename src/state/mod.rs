@@ -8,6 +8,7 @@
 
 pub mod interrupt;
 pub mod journal;
+pub mod life;
 pub mod lock;
 pub mod markers;
 pub mod ops;

@@ -53,6 +53,10 @@ pub enum Command {
     Resume(commands::resume::Args),
     /// Cancel queued and running tasks.
     Cancel(commands::cancel::Args),
+    /// Run finished tasks again on purpose (outdated ones, an edge, a leg, a window).
+    Rerun(commands::rerun::Args),
+    /// Ask finished windows for more frames; they continue from their checkpoints.
+    Extend(commands::extend::Args),
     /// Read finished windows and estimate every leg, edge and ligand.
     Collect(commands::collect::Args),
     /// Render the tables and the HTML report from collected results.

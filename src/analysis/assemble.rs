@@ -86,6 +86,7 @@ pub fn assemble(
         left_out,
         warnings,
         costs: None,
+        notes: Vec::new(),
     })
 }
 

@@ -22,8 +22,8 @@ mod results;
 pub use assemble::{assemble, AssembleError, MIN_OVERLAP};
 pub use info::{leg_spec, CampaignInfo};
 pub use leg::method_name;
-pub use pipeline::{analyse_campaign, AnalysisError, Counts};
+pub use pipeline::{analyse_campaign, analyse_campaign_from, AnalysisError, Counts};
 pub use results::{
-    Convergence, LeftOut, LegReplica, MethodValue, MissingStatus, MissingWork, Results,
-    WindowSummary, RESULTS_SCHEMA,
+    Convergence, LeftOut, LegReplica, MethodValue, MissingStatus, MissingWork, NoteKind, Results,
+    WindowSummary, WorkNote, RESULTS_SCHEMA,
 };

@@ -89,6 +89,24 @@ pub fn analyse_campaign(
     done: &(dyn Fn(TaskIndex) -> bool + Sync),
     progress: &(dyn Fn(usize, usize) + Sync),
 ) -> Result<(Results, Counts), AnalysisError> {
+    let dir_of = |t: TaskIndex| campaign.root.join(&plan.tasks[t].dir);
+    analyse_campaign_from(campaign, plan, done, &dir_of, progress)
+}
+
+/// As [`analyse_campaign`], reading each window's output from the folder
+/// `dir_of(task)` gives (its task directory, or where an earlier attempt's
+/// output is kept while the task runs again).
+///
+/// # Errors
+///
+/// As [`analyse_campaign`].
+pub fn analyse_campaign_from(
+    campaign: &Campaign,
+    plan: &Plan,
+    done: &(dyn Fn(TaskIndex) -> bool + Sync),
+    dir_of: &(dyn Fn(TaskIndex) -> PathBuf + Sync),
+    progress: &(dyn Fn(usize, usize) + Sync),
+) -> Result<(Results, Counts), AnalysisError> {
     let output = analysed_output(campaign)?;
     let (ready, waiting): (Vec<&WindowSet>, Vec<&WindowSet>) = plan
         .windows
@@ -102,11 +120,7 @@ pub fn analyse_campaign(
     let outcomes: Vec<Result<LegReplica, MissingWork>> = ready
         .par_iter()
         .map(|set| {
-            let paths: Vec<PathBuf> = set
-                .tasks
-                .iter()
-                .map(|&t| campaign.root.join(&plan.tasks[t].dir).join(&output))
-                .collect();
+            let paths: Vec<PathBuf> = set.tasks.iter().map(|&t| dir_of(t).join(&output)).collect();
             let outcome = analyse_leg_replica(campaign, set, &cache, &paths, &opts);
             progress(finished.fetch_add(1, Ordering::Relaxed) + 1, ready.len());
             match outcome {

@@ -64,6 +64,38 @@ pub struct Results {
     /// (absent when the analysis ran without the campaign's state).
     #[serde(default, skip_serializing_if = "Option::is_none")]
     pub costs: Option<crate::state::costs::Costs>,
+    /// Leg replicas whose result rests on outdated outputs, or on the frames
+    /// that exist while they are being extended (see [`WorkNote`]).
+    #[serde(default)]
+    pub notes: Vec<WorkNote>,
+}
+
+/// What a leg replica's result rests on, when that is not simply its latest
+/// finished windows.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "lowercase")]
+pub enum NoteKind {
+    /// Some windows' outputs come from a script that has changed since they ran.
+    Outdated,
+    /// Some windows are being extended (or rerun): their previous frames are used.
+    Extending,
+}
+
+/// A note on one leg replica's result.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
+pub struct WorkNote {
+    /// Subject id.
+    pub subject: String,
+    /// Leg name.
+    pub leg: String,
+    /// Replica number.
+    pub replica: u32,
+    /// Outdated or being extended.
+    pub kind: NoteKind,
+    /// The windows concerned.
+    pub windows: Vec<usize>,
+    /// In words, with what to do.
+    pub note: String,
 }
 
 /// One estimator's answer for a leg replica.

@@ -18,6 +18,9 @@ const LEG_KEYS: &[&str] = &[
     "correction",
     "restraint",
     "reader",
+    // read by `frames.rs`
+    "frames",
+    "window_frames",
 ];
 
 /// Most replicas of one leg.
@@ -69,6 +72,7 @@ fn leg(ctx: &mut Ctx, name: &str, node: &Node, key_pos: Pos) -> Option<Leg> {
         .get("reader")
         .and_then(|n| settings::reader(ctx, n, &format!("reader of {what}")));
     let lambdas = lambdas.filter(|_| named_ok)?;
+    let frames = super::frames::leg_frames(ctx, &lf, &what, lambdas.count());
     Some(Leg {
         name: name.to_string(),
         sign,
@@ -79,6 +83,7 @@ fn leg(ctx: &mut Ctx, name: &str, node: &Node, key_pos: Pos) -> Option<Leg> {
         correction,
         restraint,
         reader,
+        frames,
     })
 }
 

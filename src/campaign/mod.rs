@@ -7,6 +7,7 @@
 pub mod de;
 pub mod diagnostic;
 pub mod fields;
+pub mod frames;
 pub mod ids;
 pub mod lambdas;
 mod legs;

@@ -75,6 +75,9 @@ pub struct Leg {
     /// How this leg's window output is read, when it differs from the campaign's
     /// `reader:` (see [`Campaign::reader_for`]).
     pub reader: Option<ReaderConfig>,
+    /// Frames its analysed stage's windows must hold (`frames`, `window_frames`),
+    /// over the stage's own `frames`.
+    pub frames: super::frames::LegFrames,
 }
 
 impl Leg {

@@ -31,7 +31,11 @@ pub struct Args {
 pub fn run(args: Args, global: &Global) -> anyhow::Result<()> {
     let loaded = load_or_exit(&args.file, args.root.clone(), false)?;
     let campaign = loaded.campaign;
-    let plan = plan::expand(&campaign);
+    let mut plan = plan::expand(&campaign);
+    crate::state::life::apply_extensions(
+        &mut plan,
+        &crate::state::life::load_extensions(&campaign.root).map_err(super::status::state_exit)?,
+    );
     // Collecting only looks: a read-only view of the journal, no writer lock, so
     // it works while `watch` or `run` holds the campaign. Only the writing of
     // results/ and report/ takes a lock of its own.
@@ -122,13 +126,24 @@ pub fn collect_with_state(
             .progress_chars("=> "),
     );
     bar.set_prefix("estimating");
-    let done = |i: plan::TaskIndex| state.state(i) == TaskState::Done;
-    let result =
-        analysis::analyse_campaign(campaign, plan, &done, &|n, _| bar.set_position(n as u64));
+    // Windows being extended or rerun are read from their previous attempt's
+    // output; outdated and short ones are read as they are, with a note.
+    let view = super::life::collect_view(campaign, state);
+    let done = |i: plan::TaskIndex| state.state(i) == TaskState::Done || view.kept.contains_key(&i);
+    let dir_of = |i: plan::TaskIndex| {
+        view.kept
+            .get(&i)
+            .cloned()
+            .unwrap_or_else(|| campaign.root.join(&plan.tasks[i].dir))
+    };
+    let result = analysis::analyse_campaign_from(campaign, plan, &done, &dir_of, &|n, _| {
+        bar.set_position(n as u64)
+    });
     bar.finish_and_clear();
     let (mut results, counts) =
         result.map_err(|e| Exit::new(crate::exit::ExitKind::Failure, e.to_string()))?;
     results.costs = Some(crate::state::costs::measure(state, chrono::Utc::now()));
+    results.notes = view.notes;
     Ok((results, counts))
 }
 

@@ -28,7 +28,12 @@ pub struct Args {
 pub fn run(args: Args, global: &Global) -> anyhow::Result<()> {
     let loaded = super::check::load_or_exit(&args.file, args.root, false)?;
     let c = &loaded.campaign;
-    let p = plan::expand(c);
+    let mut p = plan::expand(c);
+    crate::state::life::apply_extensions(
+        &mut p,
+        &crate::state::life::load_extensions(&c.root)
+            .map_err(|e| Exit::bad_input(e.to_string()))?,
+    );
     lay_out(c, &p, args.force, args.dry_run, global)?;
     Ok(())
 }

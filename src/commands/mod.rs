@@ -8,11 +8,14 @@ pub mod collect;
 pub mod completions;
 pub mod estimate;
 pub mod expand;
+pub mod extend;
+pub mod life;
 pub mod man;
 pub mod new;
 pub mod progress;
 pub mod propose;
 pub mod report;
+pub mod rerun;
 pub mod resume;
 pub mod run;
 pub mod status;
@@ -33,6 +36,8 @@ pub fn dispatch(command: Command, global: &Global) -> anyhow::Result<()> {
         Command::Watch(a) => watch::run(a, global),
         Command::Resume(a) => resume::run(a, global),
         Command::Cancel(a) => cancel::run(a, global),
+        Command::Rerun(a) => rerun::run(a, global),
+        Command::Extend(a) => extend::run(a, global),
         Command::Collect(a) => collect::run(a, global),
         Command::Report(a) => report::run(a, global),
         Command::Estimate(a) => estimate::run(a, global),

@@ -40,7 +40,18 @@ pub fn run(args: Args, global: &Global) -> anyhow::Result<()> {
             batch_template: c.ctx.batch_template.clone(),
             ..c.ctx
         };
+        // Short windows (asked for more frames) continue from their checkpoints;
+        // resume submits them with the rest.
+        let short = crate::state::life::extend_short(c.state, c.sched.as_mut(), &ctx, &sel, false)
+            .map_err(state_exit)?;
         let r = crate::state::resume(c.state, c.sched.as_mut(), &ctx, &sel).map_err(state_exit)?;
+        if !global.quiet && !short.tasks.is_empty() {
+            println!(
+                "extending {} short windows ({} from a checkpoint; their current output kept in previous/attempt-N/)",
+                short.tasks.len(),
+                short.restarted
+            );
+        }
         let v = &r.revalidated;
         if !global.quiet && v.now_done.len() + v.still_unreadable.len() + v.now_short.len() > 0 {
             println!(

@@ -89,6 +89,15 @@ fn drive(
         Duration::from_secs_f64(args.progress_every.max(0.0)),
     )
     .with_costs(super::progress::cost_source(state.root(), state.plan()));
+    // Windows asked for more frames since they ran continue from their
+    // checkpoints (watch submits them); nothing else that is done runs again.
+    let short = super::life::extend_short_for_run(state, sched, ctx)?;
+    if short > 0 && !global.quiet {
+        eprintln!(
+            "{}: extending {short} short windows from their checkpoints",
+            campaign.name
+        );
+    }
     bars.update(&state.summary());
     let summary = loop {
         let settled =

@@ -155,10 +155,15 @@ pub fn run(args: Args, global: &Global) -> anyhow::Result<()> {
             }
             Err(e) => return Err(state_exit(e.into())),
         }
-        return with_loaded(loaded, args.lock_wait, global, |c| show(&args, c, global));
+        let campaign = loaded.campaign.clone();
+        return with_loaded(loaded, args.lock_wait, global, |c| {
+            show(&args, c, &campaign, global)
+        });
     }
-    with_campaign(&args.file, args.root.clone(), args.lock_wait, global, |c| {
-        show(&args, c, global)
+    let loaded = super::watch::load(&args.file, args.root.clone())?;
+    let campaign = loaded.campaign.clone();
+    with_loaded(loaded, args.lock_wait, global, |c| {
+        show(&args, c, &campaign, global)
     })
 }
 
@@ -177,17 +182,24 @@ fn read_only_status(
             "note: {holder} is following this campaign; this is its journal as of now (it queries the scheduler, so this status does not)"
         );
     }
+    let life = super::life::life(&loaded.campaign, &state);
     if args.json {
-        println!("{}", with_costs(&summary, &state)?);
+        println!("{}", with_costs(&life.json(&summary)?, &state)?);
     } else {
         print!("{}", table(&summary, loaded.config.kind, args.all));
         print!("{}", cost_table(&state));
+        print!("{}", life.text(args.all));
     }
     Ok(())
 }
 
 /// One poll (or a rescan), then the table or JSON.
-fn show(args: &Args, c: &mut Opened, global: &Global) -> anyhow::Result<()> {
+fn show(
+    args: &Args,
+    c: &mut Opened,
+    campaign: &crate::campaign::Campaign,
+    global: &Global,
+) -> anyhow::Result<()> {
     {
         if args.rescan {
             let n = state::rescan(c.state, c.sched.as_mut(), &c.ctx).map_err(state_exit)?;
@@ -198,11 +210,13 @@ fn show(args: &Args, c: &mut Opened, global: &Global) -> anyhow::Result<()> {
             state::poll(c.state, c.sched.as_mut(), &c.ctx).map_err(state_exit)?;
         }
         let summary = Summary::with_limit(c.state, c.ctx.config.max_attempts);
+        let life = super::life::life(campaign, c.state);
         if args.json {
-            println!("{}", with_costs(&summary, c.state)?);
+            println!("{}", with_costs(&life.json(&summary)?, c.state)?);
         } else {
             print!("{}", table(&summary, c.sched.kind(), args.all));
             print!("{}", cost_table(c.state));
+            print!("{}", life.text(args.all));
         }
         Ok(())
     }
@@ -210,8 +224,8 @@ fn show(args: &Args, c: &mut Opened, global: &Global) -> anyhow::Result<()> {
 
 /// The JSON `status --json` prints: the summary's keys and `costs`
 /// ([`state::costs::Costs`]).
-fn with_costs(summary: &Summary, state: &CampaignState) -> anyhow::Result<String> {
-    let mut v = serde_json::to_value(summary)?;
+fn with_costs(json: &str, state: &CampaignState) -> anyhow::Result<String> {
+    let mut v: serde_json::Value = serde_json::from_str(json)?;
     let costs = state::costs::measure(state, chrono::Utc::now());
     v["costs"] = serde_json::to_value(costs)?;
     Ok(serde_json::to_string_pretty(&v)?)

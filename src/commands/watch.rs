@@ -62,7 +62,13 @@ pub struct Loaded {
 pub fn load(file: &Path, root: Option<PathBuf>) -> anyhow::Result<Loaded> {
     let loaded = super::check::load_or_exit(file, root, false)?;
     let campaign = loaded.campaign;
-    let plan = crate::plan::expand(&campaign);
+    let mut plan = crate::plan::expand(&campaign);
+    // `legwork extend` targets raise the campaign file's frames.
+    crate::state::life::apply_extensions(
+        &mut plan,
+        &crate::state::life::load_extensions(&campaign.root)
+            .map_err(|e| Exit::bad_input(e.to_string()))?,
+    );
     let batch_template = campaign
         .scheduler
         .batch_template

@@ -21,6 +21,22 @@ pub fn window_label(k: usize, count: usize) -> String {
     format!("w{k:0width$}")
 }
 
+/// The frames a task's output must hold: for the analysed stage, the leg's
+/// `window_frames` entry, else its `frames`, else the stage's; for any other
+/// stage, the stage's.
+fn task_frames(
+    campaign: &Campaign,
+    leg: &crate::campaign::Leg,
+    stage: &crate::campaign::Stage,
+    window: Option<usize>,
+) -> Option<u64> {
+    let analysed = campaign.analysed_stage().map(|s| s.name.as_str()) == Some(stage.name.as_str());
+    match window {
+        Some(w) if analysed => leg.frames.for_window(w, stage.frames),
+        _ => stage.frames,
+    }
+}
+
 /// Expands a validated campaign into every task and batch.
 pub fn expand(campaign: &Campaign) -> Plan {
     let mut plan = Plan {
@@ -125,7 +141,7 @@ pub fn expand(campaign: &Campaign) -> Plan {
                             stage: stage.name.clone(),
                             after,
                             resources: leg.resources.clone(),
-                            frames: stage.frames,
+                            frames: task_frames(campaign, leg, stage, window),
                             batch: bi,
                         });
                         batch.tasks.push(ti);

@@ -74,7 +74,26 @@ pub fn print_summary(r: &Results, out: &mut dyn Write) -> io::Result<()> {
         }
     }
     missing(r, out)?;
+    notes(r, out)?;
     warnings(r, out)
+}
+
+/// Leg replicas whose result rests on outdated outputs or on frames that are
+/// being extended.
+fn notes(r: &Results, out: &mut dyn Write) -> io::Result<()> {
+    if r.notes.is_empty() {
+        return Ok(());
+    }
+    writeln!(
+        out,
+        "
+Notes ({} leg replicas):",
+        r.notes.len()
+    )?;
+    for n in &r.notes {
+        writeln!(out, "  {}/{}/r{}: {}", n.subject, n.leg, n.replica, n.note)?;
+    }
+    Ok(())
 }
 
 /// The ligands, most favourable first, and how their offset was fixed.

@@ -9,6 +9,7 @@
 pub mod costs;
 pub mod interrupt;
 pub mod journal;
+pub mod life;
 pub mod lock;
 pub mod markers;
 pub mod ops;

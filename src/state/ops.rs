@@ -359,6 +359,8 @@ fn build_submission(
             task: task.id.clone(),
             attempt: r.attempt + 1,
             index: indices[k],
+            script: super::life::script_hash(&state.task_dir(task)),
+            frames: task.frames,
         });
     }
     let submission = Submission {

@@ -159,6 +159,14 @@ pub struct SubmittedTask {
     pub attempt: u32,
     /// Array index.
     pub index: usize,
+    /// Hash of the `task.sh` this attempt was submitted with (see
+    /// [`super::life`]: a later render that differs makes a done task outdated).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub script: Option<String>,
+    /// The frames its output had to hold when it was submitted (a higher
+    /// target later makes a done task short).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub frames: Option<u64>,
 }
 
 /// One submission (a subset of one batch as one array job).

@@ -590,3 +590,57 @@ fn a_stage_with_a_missing_template_still_has_its_after_checked() {
     );
     assert!(messages.iter().any(|m| m.contains("prod.sh.tera")), "{err}");
 }
+
+#[test]
+fn leg_frames_and_window_frames_are_checked_where_they_are() {
+    let leg = "    replicas: 1\n";
+    // Line 15 is the leg's `replicas:`; the new keys follow it.
+    assert_error(
+        &edited(leg, "    replicas: 1\n    frames: 0\n"),
+        "campaign.yaml",
+        16,
+        "frames of leg 'complex' must be at least 1",
+    );
+    assert_error(
+        &edited(
+            leg,
+            "    replicas: 1\n    window_frames: { 1: 500, 3: 500 }\n",
+        ),
+        "campaign.yaml",
+        16,
+        "window 3 does not exist",
+    );
+    assert_error(
+        &edited(leg, "    replicas: 1\n    window_frames: { last: 500 }\n"),
+        "campaign.yaml",
+        16,
+        "`last` is not a window number",
+    );
+    assert_error(
+        &edited(leg, "    replicas: 1\n    window_frames: [500]\n"),
+        "campaign.yaml",
+        16,
+        "must map window numbers to frames",
+    );
+}
+
+#[test]
+fn a_windows_frames_override_its_legs_which_override_the_stages() {
+    let yaml = edited(
+        "    replicas: 1\n",
+        "    replicas: 1\n    frames: 800\n    window_frames: { 2: 1200 }\n",
+    )
+    .replace(
+        "template: production.sh.tera\n",
+        "template: production.sh.tera\n    output: w.tsv\n    frames: 500\n",
+    );
+    let (_dir, file) = setup(&yaml);
+    let loaded = campaign::load(&file, &LoadOptions::default()).unwrap();
+    let plan = legwork::plan::expand(&loaded.campaign);
+    let frames = |id: &str| plan.tasks[plan.task_by_id(id).unwrap()].frames;
+    assert_eq!(frames("a+b/complex/r1/w00/production"), Some(800));
+    assert_eq!(frames("a+b/complex/r1/w01/production"), Some(800));
+    assert_eq!(frames("a+b/complex/r1/w02/production"), Some(1200));
+    // A per-leg stage keeps its own (none).
+    assert_eq!(frames("a+b/complex/r1/prepare"), None);
+}

@@ -93,6 +93,8 @@ fn snapshot_plus_tail_equals_a_full_replay() {
             task: "t0".into(),
             attempt: 1,
             index: 0,
+            script: None,
+            frames: None,
         }],
     };
     for e in [

@@ -32,6 +32,7 @@ mod expand;
 mod experiment;
 mod journal;
 mod late_marker;
+mod life;
 mod local;
 mod looking;
 mod lsf;

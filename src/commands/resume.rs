@@ -5,7 +5,7 @@
 use super::status::{state_exit, with_campaign, SelectArgs};
 use crate::cli::Global;
 use crate::exit::Exit;
-use crate::state::Context;
+use crate::state::{CampaignState, Context, Selection, TaskState};
 use std::path::PathBuf;
 
 /// Options of `legwork resume`.
@@ -20,8 +20,9 @@ pub struct Args {
     /// to rerun cancelled ones too).
     #[command(flatten)]
     pub select: SelectArgs,
-    /// Allow this many attempts beyond scheduler.max_attempts, for tasks that
-    /// used them all (after fixing what made them fail).
+    /// Allow this many attempts beyond those the selected tasks already used
+    /// (at least scheduler.max_attempts), for tasks that used them all (after
+    /// fixing what made them fail).
     #[arg(long, value_name = "N", default_value_t = 0)]
     pub extra_attempts: u32,
     /// Seconds to wait for another legwork holding the campaign's lock.
@@ -34,7 +35,8 @@ pub fn run(args: Args, global: &Global) -> anyhow::Result<()> {
     with_campaign(&args.file, args.root.clone(), args.lock_wait, global, |c| {
         let sel = args.select.selection();
         let mut config = c.ctx.config.clone();
-        config.max_attempts = config.max_attempts.saturating_add(args.extra_attempts);
+        config.max_attempts =
+            attempt_limit(c.state, &sel, config.max_attempts, args.extra_attempts);
         let ctx = Context {
             config: &config,
             batch_template: c.ctx.batch_template.clone(),
@@ -101,4 +103,28 @@ pub fn run(args: Args, global: &Global) -> anyhow::Result<()> {
         }
         Ok(())
     })
+}
+
+/// The attempt limit of this resume: `max_attempts`, or with `extra` > 0 the
+/// most attempts any selected resumable task has used (at least `max_attempts`)
+/// plus `extra`, so that `--extra-attempts N` grants N attempts beyond those
+/// already used, also after an earlier `--extra-attempts`. One resume submits at
+/// most one attempt per task, so a limit above a task's own count never lets
+/// it run twice.
+fn attempt_limit(state: &CampaignState, sel: &Selection, max_attempts: u32, extra: u32) -> u32 {
+    if extra == 0 {
+        return max_attempts;
+    }
+    let used = (0..state.plan().tasks.len())
+        .filter(|&i| {
+            let st = state.state(i);
+            matches!(
+                st,
+                TaskState::Failed | TaskState::Lost | TaskState::Cancelled
+            ) && sel.matches(&state.plan().tasks[i], st)
+        })
+        .map(|i| state.record(i).attempt)
+        .max()
+        .unwrap_or(0);
+    used.max(max_attempts).saturating_add(extra)
 }

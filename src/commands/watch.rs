@@ -182,14 +182,16 @@ pub fn run(args: Args, global: &Global) -> anyhow::Result<()> {
                 )
                 .map_err(state_exit)?;
                 return Err(Exit::interrupted(format!(
-                    "interrupted: stopped {} local tasks and recorded them as cancelled; `legwork resume FILE --state cancelled` runs them again",
-                    r.live
+                    "interrupted: stopped {} local tasks and recorded them as cancelled; `legwork resume {} --state cancelled` runs them again",
+                    r.live,
+                    target(&args)
                 ))
                 .into());
             }
-            return Err(Exit::interrupted(
-                "interrupted: stopped watching; the jobs carry on in the queue (`legwork watch FILE` follows them again)",
-            )
+            return Err(Exit::interrupted(format!(
+                "interrupted: stopped watching; the jobs carry on in the queue (`legwork watch {}` follows them again)",
+                target(&args)
+            ))
             .into());
         }
         let s = settled.summary;
@@ -211,6 +213,14 @@ pub fn run(args: Args, global: &Global) -> anyhow::Result<()> {
             .into())
         }
     })
+}
+
+/// The campaign as the user named it, to repeat in hints (with `--root` if given).
+fn target(args: &Args) -> String {
+    match &args.root {
+        Some(r) => format!("{} --root {}", args.file.display(), r.display()),
+        None => args.file.display().to_string(),
+    }
 }
 
 /// Progress bars: one per leg and one overall, counting done tasks.

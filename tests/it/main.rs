@@ -30,6 +30,7 @@ mod estimate_warnings;
 mod exactly_once;
 mod expand;
 mod experiment;
+mod hints;
 mod journal;
 mod late_marker;
 mod life;

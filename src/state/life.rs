@@ -188,7 +188,7 @@ pub fn rerun(
         .filter(|&ti| only.map_or(true, |f| f(ti)))
         .collect();
     let mut out = requeue(state, ctx, &chosen, Why::Rerun)?;
-    out.submitted = submit_selected(state, sched, ctx, sel)?;
+    out.submitted = super::ops::submit_ready_in(state, sched, ctx, sel)?;
     Ok(out)
 }
 
@@ -214,21 +214,9 @@ pub fn extend_short(
         .collect();
     let mut out = requeue(state, ctx, &chosen, Why::Extend)?;
     if submit && !out.tasks.is_empty() {
-        out.submitted = submit_selected(state, sched, ctx, sel)?;
+        out.submitted = super::ops::submit_ready_in(state, sched, ctx, sel)?;
     }
     Ok(out)
-}
-
-/// Submits what is ready within `sel`, whatever state it names.
-fn submit_selected(
-    state: &mut CampaignState,
-    sched: &mut dyn crate::scheduler::Scheduler,
-    ctx: &Context,
-    sel: &Selection,
-) -> Result<SubmitSummary, StateError> {
-    let mut s = sel.clone();
-    s.states.clear();
-    super::submit_ready(state, sched, ctx, &s)
 }
 
 /// Keeps each chosen task's output, re-renders its script for the next
@@ -262,16 +250,11 @@ fn requeue(
         );
         render.push((ti, r.attempt + 1, restart));
     }
-    ctx.hooks
-        .prepare_attempts(&state.plan, &render)
-        .map_err(|detail| StateError::Task {
-            task: format!("{} tasks", render.len()),
-            detail,
-        })?;
+    let mut events = Vec::with_capacity(render.len());
     for &(ti, next, _) in &render {
         let id = state.plan.tasks[ti].id.clone();
         out.tasks.push(id.clone());
-        state.record_event(Event::Task {
+        events.push(Event::Task {
             task: id,
             state: TaskState::Planned,
             attempt: next - 1,
@@ -280,7 +263,7 @@ fn requeue(
             walltime_s: None,
         });
     }
-    state.commit()?;
+    super::ops::back_to_plan(state, ctx, &render, events)?;
     Ok(out)
 }
 

@@ -668,10 +668,22 @@ pub fn resume(
             walltime_s,
         });
     }
-    // Scripts first: a task goes back to the plan only once its next attempt's
-    // script is in place.
+    back_to_plan(state, ctx, &render, events)?;
+    summary.submitted = submit_ready_in(state, sched, ctx, sel)?;
+    Ok(summary)
+}
+
+/// Renders each task's next attempt, then journals the events that put the
+/// tasks back to `planned` and commits. Scripts first: a task goes back to the
+/// plan only once its next attempt's script is in place.
+pub(super) fn back_to_plan(
+    state: &mut CampaignState,
+    ctx: &Context,
+    render: &[(TaskIndex, u32, bool)],
+    events: Vec<Event>,
+) -> Result<(), StateError> {
     ctx.hooks
-        .prepare_attempts(&state.plan, &render)
+        .prepare_attempts(&state.plan, render)
         .map_err(|detail| StateError::Task {
             task: format!("{} tasks", render.len()),
             detail,
@@ -679,11 +691,20 @@ pub fn resume(
     for e in events {
         state.record_event(e);
     }
-    state.commit()?;
-    let mut submit_sel = sel.clone();
-    submit_sel.states.clear();
-    summary.submitted = submit_ready(state, sched, ctx, &submit_sel)?;
-    Ok(summary)
+    state.commit()
+}
+
+/// Submits what is ready within `sel`, whatever task states it names (the
+/// tasks it chose have just been put back to `planned`).
+pub(super) fn submit_ready_in(
+    state: &mut CampaignState,
+    sched: &mut dyn Scheduler,
+    ctx: &Context,
+    sel: &super::Selection,
+) -> Result<SubmitSummary, StateError> {
+    let mut s = sel.clone();
+    s.states.clear();
+    submit_ready(state, sched, ctx, &s)
 }
 
 /// Cancelled tasks whose last attempt the scheduler still lists as live.

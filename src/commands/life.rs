@@ -43,7 +43,7 @@ pub struct ShortTask {
 pub fn outdated(campaign: &Campaign, state: &CampaignState) -> BTreeSet<TaskIndex> {
     let plan = state.plan();
     let man = Manifest::load(&campaign.root);
-    let fresh = man.fingerprint == current_fingerprint(campaign);
+    let fresh = man.fingerprint == crate::render::fingerprint(campaign);
     let recorded: Vec<(TaskIndex, String, u32)> = (0..plan.tasks.len())
         .filter(|&ti| state.state(ti) == TaskState::Done)
         .filter_map(|ti| {
@@ -64,41 +64,17 @@ pub fn outdated(campaign: &Campaign, state: &CampaignState) -> BTreeSet<TaskInde
             let restart = entry.is_some_and(|e| e.attempt == *attempt && e.restart);
             let now = match entry {
                 Some(e) if fresh && e.attempt == *attempt => Some(e.hash.clone()),
-                _ => tera
-                    .as_ref()
-                    .and_then(|t| render(t, &builder, campaign, plan, *ti, *attempt, restart)),
+                _ => tera.as_ref().and_then(|t| {
+                    crate::render::render_one(t, &builder, campaign, plan, *ti, *attempt, restart)
+                        .ok()
+                        .map(|text| manifest::hash(text.as_bytes()))
+                }),
             };
             // A template that no longer renders is `check`'s to report.
             now.is_some_and(|n| &n != hash)
         })
         .map(|(ti, _, _)| *ti)
         .collect()
-}
-
-/// The render manifest's fingerprint of the campaign as it is now.
-fn current_fingerprint(campaign: &Campaign) -> String {
-    let lw = crate::render::context::legwork_value();
-    format!(
-        "{}:{}",
-        campaign.fingerprint,
-        manifest::hash(lw.to_string().as_bytes())
-    )
-}
-
-/// The hash of task `ti`'s script for `attempt`, as expand would write it.
-fn render(
-    tera: &tera::Tera,
-    builder: &crate::render::ContextBuilder,
-    campaign: &Campaign,
-    plan: &Plan,
-    ti: TaskIndex,
-    attempt: u32,
-    restart: bool,
-) -> Option<String> {
-    let stage = campaign.stage(&plan.tasks[ti].stage)?;
-    let ctx = builder.context(ti, attempt, restart);
-    let text = tera.render(&stage.template, &ctx).ok()?;
-    Some(manifest::hash(text.as_bytes()))
 }
 
 /// Whether task `ti`'s output holds what it must now (the done check).

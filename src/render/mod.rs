@@ -146,7 +146,9 @@ fn disk_hash(path: &Path) -> Option<String> {
     std::fs::read(path).ok().map(|b| manifest::hash(&b))
 }
 
-fn fingerprint(campaign: &Campaign) -> String {
+/// The render manifest's fingerprint of the campaign as it is now (its inputs
+/// and legwork's own template variables).
+pub(crate) fn fingerprint(campaign: &Campaign) -> String {
     let lw = context::legwork_value();
     format!(
         "{}:{}",
@@ -155,7 +157,8 @@ fn fingerprint(campaign: &Campaign) -> String {
     )
 }
 
-fn render_one(
+/// Task `i`'s script for `attempt`, as expand writes it.
+pub(crate) fn render_one(
     tera: &tera::Tera,
     builder: &ContextBuilder,
     campaign: &Campaign,
